@@ -1,0 +1,371 @@
+"""The documented Python API of bladesolid; the command line is a thin layer over it.
+
+Typical use::
+
+    from bladesolid import api
+    blade = api.load_blade("meshes/demo_blade.stl", units="mm", densities=["2810 kg/m^3"])
+    props = api.mass_properties(blade)
+    op = api.loads_at(blade, rpm=2500, blade_angle_deg=30.0)
+    print(props.mass_kg, op.ctm_Nm)
+
+All results are SI, in the hub frame (CONVENTIONS §1), as frozen dataclasses.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import InputError
+from .frame import BladeAngle, HubFrame, hub_frame, measure_blade_angle
+from .loads import CtmCurve, OperatingLoads, ctm_curve, operating_loads, static_moment
+from .moments import ElementMoments, Moments, moved, point_mass, relative_difference, zero_moments
+
+
+@dataclass(frozen=True)
+class LumpedMass:
+    """A point mass fixed to the blade (balance weight, counterweight); turns with the blade.
+
+    position_m : (3,) model frame, m
+    """
+
+    name: str
+    mass_kg: float
+    position_m: np.ndarray
+
+
+@dataclass(frozen=True)
+class BodyMaterial:
+    """Density of one body and where it came from."""
+
+    density_kg_m3: float
+    label: str  # material name, or the quantity as typed
+    source: str = ""
+
+
+@dataclass(frozen=True)
+class Blade:
+    """A blade ready for analysis. Geometry and moments are in the hub frame, SI.
+
+    surfaces : per body (vertices (n, 3) m, faces (m, 3)), hub frame
+    body_moments : per body mass moments from its closed surface (density applied)
+    elements : per-element mass moments, hub frame (None when not meshed)
+    element_nodes, element_tets, element_body : the tetrahedral mass elements (hub frame)
+    lumped_moments : moments of the lumped masses, hub frame
+    modelled_angle : the blade angle measured on the modelled solid (None if not measured)
+    """
+
+    name: str
+    source: str
+    units: str
+    frame: HubFrame
+    materials: tuple[BodyMaterial, ...]
+    surfaces: tuple[tuple[np.ndarray, np.ndarray], ...]
+    body_moments: tuple[Moments, ...]
+    lumped: tuple[LumpedMass, ...]
+    lumped_moments: Moments
+    tip_radius_m: float
+    reference_radius_m: float
+    modelled_angle: BladeAngle | None
+    elements: ElementMoments | None = None
+    element_nodes: np.ndarray | None = None
+    element_tets: np.ndarray | None = None
+    element_body: np.ndarray | None = None
+    warnings: tuple[str, ...] = field(default_factory=tuple)
+
+    @property
+    def surface_moments(self) -> Moments:
+        """Total of the bodies from their closed surfaces (no lumped masses)."""
+        total = zero_moments()
+        for m in self.body_moments:
+            total = total + m
+        return total
+
+    @property
+    def solid_moments(self) -> Moments:
+        """Total of the bodies: from the elements when meshed, else from the surfaces."""
+        return self.elements.total() if self.elements is not None else self.surface_moments
+
+    @property
+    def moments(self) -> Moments:
+        """Everything that turns with the blade: bodies plus lumped masses (hub frame)."""
+        return self.solid_moments + self.lumped_moments
+
+    @property
+    def modelled_deg(self) -> float:
+        """Modelled blade angle, degrees (0 when it could not be measured)."""
+        return self.modelled_angle.angle_deg if self.modelled_angle is not None else 0.0
+
+    @property
+    def volume_m3(self) -> float:
+        return float(sum(abs(m.mass) / mat.density_kg_m3 for m, mat in zip(self.body_moments, self.materials)))
+
+
+def resolve_materials(specs, n_bodies: int, source: str = "--density") -> tuple[BodyMaterial, ...]:
+    """Densities for ``n_bodies`` bodies from a list of ``("density", text)`` or
+    ``("material", name)`` specs: one spec for all bodies, or one per body in order."""
+    from .materials import material
+    from .units import parse_density
+
+    specs = list(specs or [])
+    if not specs:
+        raise InputError(source, "no density given: use --density \"2810 kg/m^3\" or --material NAME")
+    if len(specs) not in (1, n_bodies):
+        raise InputError(source, f"{len(specs)} densities given for {n_bodies} bodies; give one, or one per body")
+    out = []
+    for kind, value in specs:
+        if kind == "material":
+            m = material(value, source)
+            out.append(BodyMaterial(m.density_kg_m3, m.name, m.source))
+        else:
+            out.append(BodyMaterial(parse_density(value, source), str(value), "given"))
+    if len(out) == 1:
+        out = out * n_bodies
+    return tuple(out)
+
+
+def load_blade(
+    path,
+    units: str,
+    densities=None,
+    *,
+    lumped=(),
+    frame: HubFrame | None = None,
+    reference_radius_m: float | None = None,
+    reference_fraction: float = 0.75,
+    elements: bool = True,
+    max_element_volume_m3: float | None = None,
+    target_elements: int | None = None,
+    name: str | None = None,
+    progress=None,
+) -> Blade:
+    """Load, validate, mesh and integrate a blade.
+
+    path : mesh file (STL, OBJ, PLY, OFF surface or .msh/.vtu/.inp tetrahedra)
+    units : declared length unit of the file (``mm``, ``cm``, ``m``, ``in``, ``ft``)
+    densities : list of ``("density", "2810 kg/m^3")`` / ``("material", "al-2025-t6")``,
+      or plain strings/numbers (densities), one for all bodies or one per body
+    lumped : iterable of :class:`LumpedMass` (model frame positions, m)
+    frame : hub frame in the model frame (default: identity, right-hand rotation)
+    reference_radius_m : reference station for the blade angle (default: fraction × tip radius)
+    elements : build the tetrahedral mass elements (False: surface route only, faster)
+    progress : optional callable(stage: str) told when each stage starts
+    """
+    from .io import read_mesh
+    from .moments import surface_volume_moments, tet_volume_moments
+
+    say = progress or (lambda stage: None)
+    frame = frame or hub_frame()
+    say("load")
+    loaded = read_mesh(path, units)
+    bodies = loaded.bodies
+    warnings = list(loaded.warnings)
+    if densities is not None and not isinstance(densities, (list, tuple)):
+        densities = [densities]
+    specs = [d if isinstance(d, tuple) else ("density", d) for d in (densities or [])]
+    mats = resolve_materials(specs, len(bodies))
+    R, t = frame.model_to_hub()
+    surfaces = tuple((b.vertices @ R.T + t, np.asarray(b.faces, dtype=np.int64)) for b in bodies)
+    say("integrate surface")
+    body_moments = tuple(
+        surface_volume_moments(v, f).scaled(mat.density_kg_m3) for (v, f), mat in zip(surfaces, mats)
+    )
+    lm = zero_moments()
+    lumped = tuple(lumped)
+    for p in lumped:
+        lm = lm + point_mass(p.mass_kg, frame.to_hub(p.position_m))
+    all_y = np.concatenate([v[:, 1] for v, _ in surfaces])
+    tip = float(all_y.max())
+    if reference_radius_m is None:
+        reference_radius_m = reference_fraction * tip
+    angle = None
+    try:
+        angle = measure_blade_angle(surfaces, frame, reference_radius_m, source=str(path))
+    except InputError as exc:
+        warnings.append(f"blade angle not measured: {exc.problem}")
+    el = nodes = tets = body_ix = None
+    if elements:
+        from .mesh import mass_elements
+
+        say("mesh")
+        hub_bodies = [
+            type(b)(b.name, v, f, b.tets) for b, (v, f) in zip(bodies, surfaces)
+        ]
+        tm = mass_elements(
+            hub_bodies, max_volume=max_element_volume_m3, target_elements=target_elements, source=str(path)
+        )
+        say("integrate elements")
+        vol = tet_volume_moments(tm.nodes, tm.tets)
+        rho = np.array([m.density_kg_m3 for m in mats])[tm.body]
+        el = ElementMoments(vol.mass * rho, vol.first * rho[:, None], vol.second * rho[:, None, None])
+        nodes, tets, body_ix = tm.nodes, tm.tets, tm.body
+    return Blade(
+        name=name or str(path).replace("\\", "/").rsplit("/", 1)[-1],
+        source=str(path),
+        units=units,
+        frame=frame,
+        materials=mats,
+        surfaces=surfaces,
+        body_moments=body_moments,
+        lumped=lumped,
+        lumped_moments=lm,
+        tip_radius_m=tip,
+        reference_radius_m=float(reference_radius_m),
+        modelled_angle=angle,
+        elements=el,
+        element_nodes=nodes,
+        element_tets=tets,
+        element_body=body_ix,
+        warnings=tuple(warnings),
+    )
+
+
+# --- mass properties ------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class MassProperties:
+    """Mass properties of the blade (bodies + lumped masses) at the modelled position,
+    hub frame, SI (CONVENTIONS §6 ``mass_properties``)."""
+
+    mass_kg: float
+    volume_m3: float
+    cg_m: np.ndarray
+    inertia_hub_kgm2: np.ndarray
+    inertia_cg_kgm2: np.ndarray
+    principal_moments_kgm2: np.ndarray
+    principal_axes: np.ndarray
+    static_moment_kgm: float
+    surface_check_rel_error: float
+    surface_check_method: str
+
+
+def principal_axes(inertia: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Principal moments (ascending) and axes (columns, right-handed, each with its largest
+    component positive) of a symmetric inertia tensor."""
+    w, v = np.linalg.eigh(0.5 * (inertia + inertia.T))
+    for j in range(3):
+        if v[np.argmax(np.abs(v[:, j])), j] < 0:
+            v[:, j] = -v[:, j]
+    if np.linalg.det(v) < 0:
+        v[:, 2] = -v[:, 2]
+    return w, v
+
+
+def surface_check(blade: Blade) -> tuple[float, str]:
+    """Disagreement between two independent routes to the solid's moments and how it was got.
+
+    Meshed: tetrahedral elements against the closed-surface integral. Surface only: our
+    surface integral against trimesh's independent mass-property integration.
+    """
+    if blade.elements is not None:
+        return relative_difference(blade.elements.total(), blade.surface_moments), "elements vs closed surface"
+    import trimesh
+
+    total = zero_moments()
+    for (v, f), mat in zip(blade.surfaces, blade.materials):
+        mesh = trimesh.Trimesh(v, f, process=False)
+        mp = mesh.mass_properties
+        vol = float(mp["volume"])
+        c = np.asarray(mp["center_mass"])
+        I_c = np.asarray(mp["inertia"]) / mp["density"]  # per unit density, about the centre
+        S_c = 0.5 * np.trace(I_c) * np.eye(3) - I_c
+        m = Moments(vol, vol * c, S_c + vol * np.outer(c, c)).scaled(mat.density_kg_m3)
+        total = total + m
+    return relative_difference(total, blade.surface_moments), "closed surface vs trimesh mass properties"
+
+
+def mass_properties(blade: Blade) -> MassProperties:
+    """Mass, CG, inertia tensors, principal axes and static moment (hub frame, modelled)."""
+    m = blade.moments
+    I_hub = m.inertia()
+    I_cg = m.inertia_cg()
+    w, v = principal_axes(I_cg)
+    err, how = surface_check(blade)
+    return MassProperties(
+        mass_kg=float(m.mass),
+        volume_m3=blade.volume_m3,
+        cg_m=m.cg,
+        inertia_hub_kgm2=I_hub,
+        inertia_cg_kgm2=I_cg,
+        principal_moments_kgm2=w,
+        principal_axes=v,
+        static_moment_kgm=float(static_moment(m, blade.frame.k)),
+        surface_check_rel_error=err,
+        surface_check_method=how,
+    )
+
+
+# --- loads ------------------------------------------------------------------------------
+
+
+def blade_curve(blade: Blade) -> CtmCurve:
+    """The CTM(β) curve of the blade with its lumped masses (coefficients per Ω²)."""
+    return ctm_curve(blade.moments, blade.frame, blade.modelled_deg)
+
+
+def resolve_blade_angle(blade: Blade, blade_angle_deg: float | None = None,
+                        pitch_change_deg: float | None = None) -> float:
+    """Absolute blade angle (deg) from an absolute angle or a change from the modelled one."""
+    if blade_angle_deg is not None and pitch_change_deg is not None:
+        raise InputError("--blade-angle", "give either --blade-angle or --pitch-change, not both")
+    if blade_angle_deg is not None:
+        if blade.modelled_angle is None:
+            raise InputError(blade.source, "the modelled blade angle could not be measured; use --pitch-change")
+        return float(blade_angle_deg)
+    return blade.modelled_deg + float(pitch_change_deg or 0.0)
+
+
+def loads_at(blade: Blade, rpm: float, blade_angle_deg: float | None = None,
+             pitch_change_deg: float | None = None, name: str = "") -> OperatingLoads:
+    """Centrifugal loads at ``rpm`` and an absolute blade angle (or a pitch change)."""
+    beta = resolve_blade_angle(blade, blade_angle_deg, pitch_change_deg)
+    return operating_loads(blade.moments, blade.frame, blade.modelled_deg, beta, rpm, name=name,
+                           curve=blade_curve(blade))
+
+
+def pitch_sweep(blade: Blade, rpm: float, lo_deg: float, hi_deg: float, step_deg: float):
+    """(β (deg), CTM (N·m), pitch stiffness (N·m/rad)) arrays over a blade-angle range."""
+    if not (step_deg > 0 and hi_deg >= lo_deg):
+        raise InputError("--sweep", f"expected FROM:TO:STEP with TO >= FROM and STEP > 0, got {lo_deg}:{hi_deg}:{step_deg}")
+    n = int(math.floor((hi_deg - lo_deg) / step_deg + 1e-9)) + 1
+    betas = lo_deg + step_deg * np.arange(n)
+    omega = float(rpm) * 2 * math.pi / 60
+    curve = blade_curve(blade)
+    return betas, curve.ctm(betas, omega), curve.pitch_stiffness(betas, omega)
+
+
+def hub_to_model_moments(blade: Blade, m: Moments) -> Moments:
+    """Moments expressed back in the model frame (for cross-checks with CAD figures)."""
+    R, t = blade.frame.model_to_hub()
+    return moved(m, R.T, -R.T @ t)
+
+
+# --- from a job ---------------------------------------------------------------------------
+
+
+def blade_from_job(job, *, elements: bool = True, progress=None) -> Blade:
+    """Load the blade a validated :class:`bladesolid.job.Job` describes."""
+    from .job import check_pitch_point, hub_frame_of
+
+    frame = hub_frame_of(job)
+    lumped = tuple(LumpedMass(n, m, np.asarray(p, float)) for n, m, p in job.lumped)
+    blade = load_blade(
+        job.mesh,
+        job.units,
+        list(job.densities),
+        lumped=lumped,
+        frame=frame,
+        reference_radius_m=job.reference_radius_m,
+        reference_fraction=job.reference_fraction,
+        elements=elements,
+        max_element_volume_m3=None if job.element_size_m is None else job.element_size_m**3 / (6.0 * math.sqrt(2.0)),
+        target_elements=job.elements,
+        name=job.name,
+        progress=progress,
+    )
+    if job.pitch_point_m is not None:
+        check_pitch_point(frame, blade.moments.cg, blade.tip_radius_m, f"{job.source}")
+    return blade

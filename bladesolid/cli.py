@@ -1,0 +1,430 @@
+"""The ``bladesolid`` command line: argument handling and printing only (CONVENTIONS §7).
+
+Every command is a thin layer over :mod:`bladesolid.api`. Exit status: 0 done, 1 done but
+a limit is exceeded, 2 bad input or usage (one line on stderr naming the file and the
+problem; no traceback; no partial output).
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import os
+import sys
+
+from . import CAUTION, __version__
+from .errors import InputError
+
+
+class UsageError(Exception):
+    """Bad command-line usage (exit 2)."""
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # one line, exit 2, no usage dump
+        raise UsageError(f"{self.prog}: {message}")
+
+
+# --- shared flags --------------------------------------------------------------------------
+
+
+class _Tagged(argparse.Action):
+    """Append ("density"|"material", value) to one list so their order is kept."""
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        items = getattr(namespace, "densities", None) or []
+        kind = "material" if option_string == "--material" else "density"
+        items.append((kind, values))
+        namespace.densities = items
+
+
+def _add_blade_flags(p, job_allowed: bool = True):
+    p.add_argument("input", metavar="JOB.toml|MESH" if job_allowed else "MESH",
+                   help="a job file (.toml) or a blade mesh (STL/OBJ/PLY/OFF, .msh/.vtu/.inp)")
+    p.add_argument("--units", help="length unit of the mesh: mm, cm, m, in or ft (required for a mesh)")
+    p.add_argument("--density", action=_Tagged, dest="densities", metavar="QUANTITY",
+                   help='density with its unit, e.g. "2810 kg/m^3" (bare number: kg/m^3); once, or once per body')
+    p.add_argument("--material", action=_Tagged, dest="densities", metavar="NAME",
+                   help="a material of the built-in table (see `bladesolid materials`)")
+    p.add_argument("--lumped-mass", action="append", metavar="MASS@X,Y,Z",
+                   help='a point mass fixed to the blade, e.g. "0.05 kg@-10,160,30" (model frame and unit)')
+    p.add_argument("--hub-centre", metavar="X,Y,Z")
+    p.add_argument("--thrust-axis", metavar="X,Y,Z")
+    p.add_argument("--pitch-axis", metavar="X,Y,Z")
+    p.add_argument("--pitch-point", metavar="X,Y,Z")
+    p.add_argument("--precone", type=float, metavar="DEG")
+    p.add_argument("--rotation", choices=["right", "left"])
+    p.add_argument("--blades", type=int, metavar="N", help="number of blades on the hub")
+    p.add_argument("--reference-radius", type=float, metavar="R", help="reference station radius (model unit)")
+    p.add_argument("--reference-fraction", type=float, metavar="F", help="reference station as a fraction of the tip radius (default 0.75)")
+    p.add_argument("--name", help="blade name shown in the reports")
+    p.add_argument("--json", metavar="FILE", help="write the JSON report here")
+    p.add_argument("--force", action="store_true", help="overwrite existing output files")
+    p.add_argument("--us", action="store_true", help="print US customary units (the JSON stays SI)")
+
+
+def _add_load_flags(p):
+    p.add_argument("--rpm", metavar="N[,N...]", help="speed(s), rpm")
+    g = p.add_mutually_exclusive_group()
+    g.add_argument("--blade-angle", type=float, metavar="DEG", help="absolute blade angle, degrees")
+    g.add_argument("--pitch-change", type=float, metavar="DEG", help="change from the modelled blade angle, degrees")
+    p.add_argument("--sweep", metavar="FROM:TO:STEP", help="blade-angle sweep, degrees")
+
+
+def _flags(args) -> dict:
+    """Command-line flags as job keys (CONVENTIONS §7: a flag overrides the key)."""
+    out = {}
+    for key in ("units", "name", "hub_centre", "thrust_axis", "pitch_axis", "pitch_point", "precone",
+                "rotation", "blades", "reference_radius", "reference_fraction", "rpm", "blade_angle",
+                "pitch_change", "sweep", "stations", "allowable", "elements", "element_size", "field_faces",
+                "reference", "limits", "rpm_sweep", "proof_factor"):
+        v = getattr(args, key, None)
+        if v is not None:
+            out[key] = v
+    dens = getattr(args, "densities", None)
+    if dens:
+        d = [v for k, v in dens if k == "density"]
+        m = [v for k, v in dens if k == "material"]
+        if d and m:
+            raise UsageError("bladesolid: give either --density or --material (repeat it for several bodies), not both")
+        if d:
+            out["density"] = d if len(d) > 1 else d[0]
+        if m:
+            out["material"] = m if len(m) > 1 else m[0]
+    lm = getattr(args, "lumped_mass", None)
+    if lm:
+        tables = []
+        for i, text in enumerate(lm, 1):
+            if "@" not in text:
+                raise InputError("--lumped-mass", f"expected MASS@X,Y,Z, got {text!r}")
+            mass, pos = text.split("@", 1)
+            tables.append({"name": f"lumped mass {i}", "mass": mass.strip(), "position": pos.split(",")})
+        out["lumped_mass"] = tables
+    return out
+
+
+def _job(args):
+    """A validated job from a job file plus flags, or from a mesh plus flags."""
+    from .job import build_job, load_job
+
+    flags = _flags(args)
+    if str(args.input).lower().endswith(".toml"):
+        return load_job(args.input, flags)
+    flags["mesh"] = args.input
+    if "units" not in flags:
+        raise InputError(args.input, "no length unit given: add --units mm (or cm, m, in, ft); a mesh file carries no unit")
+    return build_job({}, "command line", ".", flags)
+
+
+def _console(stderr=False):
+    from rich.console import Console
+
+    return Console(stderr=stderr, highlight=False, soft_wrap=False)
+
+
+def _progress(console):
+    """A callable(stage) that shows the current stage on stderr."""
+    labels = {"load": "reading and checking the mesh", "integrate surface": "integrating the closed surface",
+              "mesh": "filling the solid with tetrahedral mass elements", "integrate elements": "integrating the elements"}
+
+    def show(stage):
+        if console.is_terminal:
+            console.print(f"[dim]… {labels.get(stage, stage)}[/dim]")
+    return show
+
+
+def _warn(console, blade):
+    for w in blade.warnings:
+        console.print(f"[yellow]warning:[/yellow] {w}")
+
+
+def _fmt(x, digits=6):
+    if x is None:
+        return "—"
+    if isinstance(x, float) and not math.isfinite(x):
+        return "—"
+    return f"{x:.{digits}g}"
+
+
+def _vec(v, digits=6):
+    return "[" + ", ".join(_fmt(float(x), digits) for x in v) + "]"
+
+
+def _conv(us):
+    """(convert(value, kind), label(kind)) for the chosen display units."""
+    from .units import to_customary, unit_label
+
+    if us:
+        return (lambda v, k: to_customary(v, k)), (lambda k: unit_label(k, "us"))
+    return (lambda v, k: v), (lambda k: unit_label(k, "si"))
+
+
+# --- commands -------------------------------------------------------------------------------
+
+
+def cmd_mass(args) -> int:
+    from . import api, report
+
+    if args.json:
+        report.check_new_output(args.json, args.force)
+    job = _job(args)
+    err = _console(stderr=True)
+    blade = api.blade_from_job(job, elements=args.check_elements, progress=_progress(err))
+    _warn(err, blade)
+    props = api.mass_properties(blade)
+    data = report.base_report(blade)
+    data["mass_properties"] = report.mass_section(props)
+    data["blade_angle"] = report.blade_angle_section(blade)
+    if args.json:
+        report.atomic_write_text(args.json, report.dumps(data), args.force)
+    _print_mass(_console(), blade, props, args.us)
+    return 0
+
+
+def _print_mass(con, blade, props, us):
+    from rich.table import Table
+
+    cv, lab = _conv(us)
+    t = Table(title=f"Mass properties — {blade.name}", title_justify="left", show_header=True)
+    t.add_column("quantity")
+    t.add_column("value", justify="right")
+    t.add_column("unit")
+    t.add_row("mass", _fmt(cv(props.mass_kg, "mass")), lab("mass"))
+    t.add_row("volume", _fmt(cv(props.volume_m3, "volume")), lab("volume"))
+    t.add_row("centre of gravity (hub frame)", _vec(cv(props.cg_m, "length")), lab("length"))
+    t.add_row("static moment m·|c⊥|", _fmt(cv(props.static_moment_kgm, "static_moment")), lab("static_moment"))
+    for name, I in (("inertia about hub centre", props.inertia_hub_kgm2), ("inertia about CG", props.inertia_cg_kgm2)):
+        I = cv(I, "inertia")
+        for i, row in enumerate(I):
+            t.add_row(name if i == 0 else "", _vec(row), lab("inertia"))
+    t.add_row("principal moments (about CG)", _vec(cv(props.principal_moments_kgm2, "inertia")), lab("inertia"))
+    for i, col in enumerate(props.principal_axes.T):
+        t.add_row(f"principal axis {i + 1}", _vec(col, 5), "unit vector")
+    a = blade.modelled_angle
+    if a is not None:
+        t.add_row(f"blade angle at r = {_fmt(cv(a.radius_m, 'length'), 5)} {lab('length')}", _fmt(a.angle_deg, 5), "deg")
+    t.add_row("surface check (relative)", f"{props.surface_check_rel_error:.2e}", props.surface_check_method)
+    con.print(t)
+    con.print(f"[dim]{CAUTION}[/dim]")
+
+
+def _operating(blade, job, need_default: bool = True):
+    """Operating points of the job (or a single one from --rpm), loads at each."""
+    from . import api
+
+    if not job.operating_points:
+        if need_default:
+            raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
+        return []
+    return [
+        api.loads_at(blade, op.rpm, op.blade_angle_deg, op.pitch_change_deg, name=op.name)
+        for op in job.operating_points
+    ]
+
+
+def loads_report(blade, job, ops):
+    """The report dict of the loads command (and of ``check``)."""
+    from . import api, report
+    from .loads import PROOF_SOURCE, proof_load
+
+    props = api.mass_properties(blade)
+    data = report.base_report(blade)
+    data["mass_properties"] = report.mass_section(props)
+    data["blade_angle"] = report.blade_angle_section(blade)
+    data["operating_points"] = [report.operating_point_row(o) for o in ops]
+    lo, hi, step = job.sweep_deg
+    betas, ctm, k = api.pitch_sweep(blade, ops[0].rpm, lo, hi, step)
+    data["pitch_sweep"] = report.sweep_rows(betas, ctm, k)
+    curve = api.blade_curve(blade)
+    data["ctm_curve"] = {
+        "form": "CTM = (2*pi*rpm/60)^2 * (a0 + a1 cos b + b1 sin b + a2 cos 2b + b2 sin 2b), b = blade angle",
+        "coefficients_kgm2": dict(zip(["a0", "a1", "b1", "a2", "b2"], curve.coefficients.tolist())),
+        "zero_ctm_blade_angles_deg": curve.zeros(-180.0, 180.0),
+        "zero_ctm_in_sweep_deg": curve.zeros(lo, hi),
+    }
+    biggest = max(ops, key=lambda o: o.radial_pull_N)
+    data["proof_load"] = {
+        "factor": job.proof_factor,
+        "source": PROOF_SOURCE,
+        "largest_radial_pull_N": biggest.radial_pull_N,
+        "at_operating_point": biggest.name,
+        "at_rpm": biggest.rpm,
+        "proof_load_N": proof_load(biggest.radial_pull_N, job.proof_factor),
+    }
+    data["rotor"] = {
+        "blades": job.blades,
+        "polar_inertia_per_blade_kgm2": ops[0].polar_inertia_kgm2,
+        "polar_inertia_rotor_kgm2": ops[0].polar_inertia_kgm2 * job.blades,
+        "note": "blades only, at the first operating point's blade angle; hub and spinner not included",
+    }
+    if job.counterweight is not None:
+        data["counterweight_sizing"] = counterweight_section(blade, job, ops[0])
+    return data
+
+
+def counterweight_section(blade, job, op0):
+    from .loads import counterweight_position, size_counterweight
+
+    cw = job.counterweight
+    a = blade.modelled_angle
+    if a is None:
+        raise InputError(job.source, "counterweight sizing needs the modelled blade angle (chord direction)")
+    chord = a.leading_edge - a.trailing_edge
+    pos = counterweight_position(blade.frame, chord, cw.radius_m, cw.arm_m, cw.clocking_deg)
+    beta = cw.blade_angle_deg if cw.blade_angle_deg is not None else op0.blade_angle_deg
+    rpm = cw.rpm if cw.rpm is not None else op0.rpm
+    try:
+        s = size_counterweight(blade.moments, blade.frame, blade.modelled_deg, pos, beta, rpm, cw.target_ctm_Nm)
+    except ValueError as exc:
+        raise InputError(f"{job.source}: counterweight", str(exc)) from None
+    return {
+        "mass_kg": s.mass_kg,
+        "position_hub_m": s.position_m,
+        "blade_angle_deg": beta,
+        "rpm": rpm,
+        "target_ctm_Nm": cw.target_ctm_Nm,
+        "ctm_per_kg_Nm": s.ctm_per_kg_Nm,
+        "added_radial_pull_N": s.added_radial_pull_N,
+        "net_ctm_Nm": s.net_ctm_Nm,
+    }
+
+
+def cmd_loads(args) -> int:
+    from . import api, report
+
+    if args.json:
+        report.check_new_output(args.json, args.force)
+    job = _job(args)
+    if not job.operating_points:
+        raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
+    err = _console(stderr=True)
+    blade = api.blade_from_job(job, elements=False, progress=_progress(err))
+    _warn(err, blade)
+    ops = _operating(blade, job)
+    data = loads_report(blade, job, ops)
+    if args.json:
+        report.atomic_write_text(args.json, report.dumps(data), args.force)
+    _print_loads(_console(), blade, data, ops, args.us)
+    return 0
+
+
+def _print_loads(con, blade, data, ops, us):
+    from rich.table import Table
+
+    cv, lab = _conv(us)
+    a = blade.modelled_angle
+    con.print(f"[bold]Centrifugal loads — {blade.name}[/bold]")
+    mp = data["mass_properties"]
+    con.print(
+        f"mass {_fmt(cv(mp['mass_kg'], 'mass'))} {lab('mass')}, CG radius "
+        f"{_fmt(cv(float(mp['cg_m'][1]), 'length'))} {lab('length')}, modelled blade angle "
+        f"{_fmt(a.angle_deg if a else None, 5)} deg at r = {_fmt(cv(blade.reference_radius_m, 'length'), 5)} {lab('length')}"
+    )
+    t = Table(show_header=True)
+    t.add_column("figure")
+    t.add_column("unit")
+    for o in ops:
+        t.add_column(o.name, justify="right")
+    rows = [
+        ("speed", "rpm", lambda o: _fmt(o.rpm)),
+        ("blade angle", "deg", lambda o: _fmt(o.blade_angle_deg, 5)),
+        ("radial pull F·e", lab("force"), lambda o: _fmt(cv(o.radial_pull_N, "force"))),
+        ("centrifugal force (hub frame)", lab("force"), lambda o: _vec(cv(o.cf_N, "force"), 5)),
+        ("CTM (+ toward coarse)", lab("moment"), lambda o: _fmt(cv(o.ctm_Nm, "moment"))),
+        ("out-of-plane bending at hub (+ tip forward)", lab("moment"), lambda o: _fmt(cv(o.bending_out_of_plane_Nm, "moment"))),
+        ("in-plane bending at hub (+ tip with rotation)", lab("moment"), lambda o: _fmt(cv(o.bending_in_plane_Nm, "moment"))),
+        ("centrifugal pitch stiffness −dCTM/dβ", lab("stiffness"), lambda o: _fmt(cv(o.pitch_stiffness_Nm_per_rad, "stiffness"))),
+        ("feathering moment of inertia", lab("inertia"), lambda o: _fmt(cv(o.feathering_inertia_kgm2, "inertia"))),
+        ("free-pitch frequency ratio ν/Ω", "—", lambda o: _fmt(o.free_pitch_frequency_ratio, 4)),
+        ("polar moment of inertia, per blade", lab("inertia"), lambda o: _fmt(cv(o.polar_inertia_kgm2, "inertia"))),
+    ]
+    for label, unit, fn in rows:
+        t.add_row(label, unit, *[fn(o) for o in ops])
+    con.print(t)
+    c = data["ctm_curve"]
+    zs = ", ".join(_fmt(z, 5) for z in c["zero_ctm_in_sweep_deg"]) or "none in the sweep range"
+    con.print(f"CTM is zero at blade angles (deg): {zs}")
+    pl = data["proof_load"]
+    con.print(
+        f"centrifugal proof load: {_fmt(cv(pl['proof_load_N'], 'force'))} {lab('force')} "
+        f"= {pl['factor']:g} × {_fmt(cv(pl['largest_radial_pull_N'], 'force'))} {lab('force')} at {pl['at_operating_point']} "
+        f"[dim]({pl['source']})[/dim]"
+    )
+    r = data["rotor"]
+    con.print(f"polar moment of inertia, {r['blades']} blades: {_fmt(cv(r['polar_inertia_rotor_kgm2'], 'inertia'))} {lab('inertia')} (blades only)")
+    if "counterweight_sizing" in data:
+        s = data["counterweight_sizing"]
+        con.print(
+            f"counterweight for {_fmt(cv(s['target_ctm_Nm'], 'moment'))} {lab('moment')} net CTM at "
+            f"{_fmt(s['blade_angle_deg'], 4)} deg, {_fmt(s['rpm'])} rpm: {_fmt(cv(s['mass_kg'], 'mass'))} {lab('mass')}, "
+            f"adding {_fmt(cv(s['added_radial_pull_N'], 'force'))} {lab('force')} radial pull"
+        )
+    con.print(f"[dim]{CAUTION}[/dim]")
+
+
+def cmd_materials(args) -> int:
+    from rich.table import Table
+
+    from .materials import MATERIALS
+
+    t = Table(title="Built-in materials (nominal densities; use the drawing's value for decisions)")
+    t.add_column("name")
+    t.add_column("density kg/m^3", justify="right")
+    t.add_column("description")
+    t.add_column("source")
+    for m in MATERIALS.values():
+        t.add_row(m.name, f"{m.density_kg_m3:g}", m.description, m.source)
+    _console().print(t)
+    return 0
+
+
+# --- parser ---------------------------------------------------------------------------------
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = _Parser(prog="bladesolid", description="Mass properties and centrifugal loads of rotating blades.",
+                epilog=CAUTION)
+    p.add_argument("--version", action="version", version=f"bladesolid {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
+
+    m = sub.add_parser("mass", help="mass, CG, inertia tensors, static moment")
+    _add_blade_flags(m)
+    m.add_argument("--check-elements", action="store_true",
+                   help="also build the tetrahedral mass elements and check them against the surface")
+    m.set_defaults(func=cmd_mass)
+
+    lo = sub.add_parser("loads", help="centrifugal loads and CTM at speed and blade angle")
+    _add_blade_flags(lo)
+    _add_load_flags(lo)
+    lo.set_defaults(func=cmd_loads)
+
+    mt = sub.add_parser("materials", help="list the built-in materials")
+    mt.set_defaults(func=cmd_materials)
+    return p
+
+
+def main(argv=None) -> int:
+    """Entry point: returns the exit status."""
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+        if not getattr(args, "command", None):
+            parser.print_help()
+            return 2
+        return int(args.func(args) or 0)
+    except UsageError as exc:
+        print(str(exc).splitlines()[0], file=sys.stderr)
+        return 2
+    except InputError as exc:
+        print(f"bladesolid: error: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("bladesolid: interrupted; no partial output was left", file=sys.stderr)
+        return 130
+    except MemoryError:
+        print("bladesolid: error: out of memory; try a coarser mesh", file=sys.stderr)
+        return 2
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,532 @@
+"""Job files (TOML) and their command-line flags: one set of keys, one validation.
+
+Every top-level key has the flag of the same name (``pitch_axis`` ↔ ``--pitch-axis``); a
+flag given beside a job file overrides the key. Points and lengths are in the declared
+model unit, angles in degrees, speeds in rpm; quantities with units are strings
+(``"2810 kg/m^3"``). Unknown keys, wrong types, bad axes and the like raise
+:class:`~bladesolid.errors.InputError` naming the file and the key.
+
+A commented example is :data:`EXAMPLE_JOB` (also in the README).
+"""
+
+from __future__ import annotations
+
+import math
+import os
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import InputError
+
+EXAMPLE_JOB = '''\
+# bladesolid job file: every key has the command-line flag of the same name
+# (pitch_axis <-> --pitch-axis); a flag given beside the job file overrides it.
+name = "BW-3 blade, serial BW3-0142"   # free text, shown in the reports
+mesh = "demo_blade.stl"                # path relative to this file
+units = "mm"                           # length unit of the mesh and of every point below
+material = "al-2025-t6"                # or: density = "2810 kg/m^3"; a list gives one per body
+blades = 3                             # number of blades on the hub
+
+# hub frame, in the model frame (defaults: the mesh is modelled in the hub frame)
+hub_centre = [0.0, 0.0, 0.0]           # O, where the pitch axis meets the rotation axis
+thrust_axis = [0.0, 0.0, 1.0]          # k, rotation axis pointing forward
+pitch_axis = [0.0, 1.0, 0.0]           # e, outboard (unit vector)
+# pitch_point = [0.0, 0.0, 0.0]        # a point of the pitch axis when it is offset from O
+precone = 0.0                          # degrees, pitch axis forward of the plane of rotation
+rotation = "right"                     # right-handed about the thrust axis, or "left"
+
+reference_fraction = 0.75              # reference station for the blade angle (x tip radius)
+# reference_radius = 750.0             # or an explicit radius along the pitch axis
+sweep = "-10:90:1"                     # blade-angle range of the CTM sweep, degrees FROM:TO:STEP
+rpm_sweep = "0:3000:100"               # speed range of the speed sweep, rpm FROM:TO:STEP
+stations = 16                          # spanwise stations: a count, or a list of radii
+# allowable = "240 MPa"                # material allowable for the centrifugal margin of safety
+proof_factor = 2.0                     # centrifugal proof load = factor x largest radial pull
+
+[[operating_point]]                    # the first one is used for sweeps and spanwise tables
+name = "take-off"
+rpm = 2500
+blade_angle = 25.0                     # degrees; omit to use the modelled blade angle
+
+[[operating_point]]
+name = "maximum continuous"
+rpm = 2400
+blade_angle = 28.0
+
+[[operating_point]]
+name = "overspeed"
+rpm = 2875
+blade_angle = 25.0
+
+[[lumped_mass]]                        # point masses fixed to the blade; they turn with it
+name = "balance weight"
+mass = "0.045 kg"
+position = [-10.0, 160.0, 30.0]        # model frame, model units
+'''
+
+#: key -> (kind, flag); kinds are checked by _check below.
+KEYS: dict[str, tuple[str, str]] = {
+    "name": ("str", "--name"),
+    "mesh": ("path", "MESH"),
+    "units": ("str", "--units"),
+    "density": ("quantity_or_list", "--density"),
+    "material": ("str_or_list", "--material"),
+    "blades": ("int", "--blades"),
+    "hub_centre": ("vec3", "--hub-centre"),
+    "thrust_axis": ("vec3", "--thrust-axis"),
+    "pitch_axis": ("vec3", "--pitch-axis"),
+    "pitch_point": ("vec3", "--pitch-point"),
+    "precone": ("float", "--precone"),
+    "rotation": ("str", "--rotation"),
+    "reference_fraction": ("float", "--reference-fraction"),
+    "reference_radius": ("float", "--reference-radius"),
+    "rpm": ("float_or_list", "--rpm"),
+    "blade_angle": ("float", "--blade-angle"),
+    "pitch_change": ("float", "--pitch-change"),
+    "sweep": ("range", "--sweep"),
+    "rpm_sweep": ("range", "--rpm-sweep"),
+    "stations": ("stations", "--stations"),
+    "allowable": ("quantity", "--allowable"),
+    "proof_factor": ("float", "--proof-factor"),
+    "elements": ("int", "--elements"),
+    "element_size": ("float", "--element-size"),
+    "field_faces": ("int", "--field-faces"),
+    "reference": ("path", "--reference"),
+    "limits": ("path", "--limits"),
+    "operating_point": ("tables", ""),
+    "lumped_mass": ("tables", ""),
+    "counterweight": ("table", ""),
+    "set": ("table", ""),
+}
+
+OPERATING_KEYS = {"name", "rpm", "blade_angle", "pitch_change"}
+LUMPED_KEYS = {"name", "mass", "position"}
+COUNTERWEIGHT_KEYS = {"radius", "arm", "clocking", "blade_angle", "rpm", "target_ctm"}
+
+
+@dataclass(frozen=True)
+class OperatingPoint:
+    """A named speed (rpm) with a blade angle (absolute, or a change from modelled; deg)."""
+
+    name: str
+    rpm: float
+    blade_angle_deg: float | None = None
+    pitch_change_deg: float | None = None
+
+
+@dataclass(frozen=True)
+class CounterweightRequest:
+    """Counterweight sizing request (lengths m, angles deg, CTM target N·m)."""
+
+    radius_m: float
+    arm_m: float
+    clocking_deg: float
+    blade_angle_deg: float | None
+    rpm: float | None
+    target_ctm_Nm: float
+
+
+@dataclass(frozen=True)
+class Job:
+    """A validated job: everything in SI (lengths m, model frame), angles deg, speeds rpm."""
+
+    source: str
+    mesh: str
+    units: str
+    name: str
+    densities: tuple = ()
+    blades: int = 1
+    hub_centre_m: tuple = (0.0, 0.0, 0.0)
+    thrust_axis: tuple = (0.0, 0.0, 1.0)
+    pitch_axis: tuple = (0.0, 1.0, 0.0)
+    pitch_point_m: tuple | None = None
+    precone_deg: float | None = None
+    rotation: str = "right"
+    reference_fraction: float = 0.75
+    reference_radius_m: float | None = None
+    operating_points: tuple[OperatingPoint, ...] = ()
+    sweep_deg: tuple[float, float, float] = (-10.0, 90.0, 1.0)
+    rpm_sweep: tuple[float, float, float] | None = None
+    stations: object = 16  # int count, or tuple of radii in m
+    allowable_Pa: float | None = None
+    proof_factor: float = 2.0
+    elements: int | None = None
+    element_size_m: float | None = None
+    field_faces: int | None = None
+    lumped: tuple = ()
+    counterweight: CounterweightRequest | None = None
+    reference: str | None = None
+    limits: str | None = None
+    set_reports: tuple = ()
+    raw: dict = field(default_factory=dict, repr=False, compare=False)
+
+
+def parse_range(text, source: str, key: str) -> tuple[float, float, float]:
+    """``"FROM:TO:STEP"`` (or a list of three numbers) → floats, checked.
+
+    >>> parse_range("-10:90:0.5", "job.toml", "sweep")
+    (-10.0, 90.0, 0.5)
+    """
+    if isinstance(text, (list, tuple)):
+        parts = list(text)
+    else:
+        parts = str(text).split(":")
+    try:
+        lo, hi, step = (float(p) for p in parts)
+    except (TypeError, ValueError):
+        raise InputError(source, f"{key} must be FROM:TO:STEP (three numbers), got {text!r}") from None
+    if not all(math.isfinite(x) for x in (lo, hi, step)) or step <= 0 or hi < lo:
+        raise InputError(source, f"{key} must have TO >= FROM and STEP > 0, got {text!r}")
+    if (hi - lo) / step > 1_000_000:
+        raise InputError(source, f"{key} asks for more than a million points, got {text!r}")
+    return lo, hi, step
+
+
+def parse_vec3(text, source: str, key: str) -> tuple[float, float, float]:
+    """``"X,Y,Z"`` or a list of three numbers → floats.
+
+    >>> parse_vec3("0,1,0", "--pitch-axis", "pitch axis")
+    (0.0, 1.0, 0.0)
+    """
+    parts = text if isinstance(text, (list, tuple)) else str(text).split(",")
+    if len(parts) != 3 or any(isinstance(p, bool) for p in parts):
+        raise InputError(source, f"{key} must be three numbers X,Y,Z, got {text!r}")
+    try:
+        v = tuple(float(p) for p in parts)
+    except (TypeError, ValueError):
+        raise InputError(source, f"{key} must be three numbers X,Y,Z, got {text!r}") from None
+    if not all(math.isfinite(x) for x in v):
+        raise InputError(source, f"{key} must be finite, got {text!r}")
+    return v
+
+
+def _where(src: str, key: str, from_flag: bool) -> str:
+    flag = KEYS.get(key, ("", ""))[1]
+    return flag if from_flag and flag else f"{src}: key '{key}'"
+
+
+def _num(v, where: str, what: str, integer: bool = False) -> float:
+    if isinstance(v, bool) or not isinstance(v, (int, float)):
+        if isinstance(v, str):
+            try:
+                v = float(v)
+            except ValueError:
+                raise InputError(where, f"{what} must be a number, got {v!r}") from None
+        else:
+            raise InputError(where, f"{what} must be a number, got {v!r}")
+    if not math.isfinite(float(v)):
+        raise InputError(where, f"{what} must be finite, got {v!r}")
+    if integer:
+        if float(v) != int(v):
+            raise InputError(where, f"{what} must be a whole number, got {v!r}")
+        return int(v)
+    return float(v)
+
+
+def read_job_file(path) -> dict:
+    """Parse a TOML job file into a dict; a one-line error on any problem."""
+    import tomllib
+
+    p = str(path)
+    if not os.path.isfile(p):
+        raise InputError(p, "job file not found")
+    if os.path.getsize(p) > 10_000_000:
+        raise InputError(p, "job file is larger than 10 MB; is it really a job file?")
+    try:
+        with open(p, "rb") as fh:
+            data = tomllib.load(fh)
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(p, f"not valid TOML ({exc})") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise InputError(p, f"cannot be read ({exc})") from None
+    return data
+
+
+def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None = None) -> Job:
+    """Validate job keys (from a file) and flags (overriding them) into a :class:`Job`.
+
+    data : the parsed TOML;  flags : keys given on the command line (same names and kinds).
+    Relative paths are taken from ``base_dir`` (the job file's folder) for file keys and
+    from the working directory for flags.
+    """
+    from .units import length_scale, parse_density, parse_mass, parse_stress
+
+    flags = {k: v for k, v in (flags or {}).items() if v is not None}
+    merged = dict(data)
+    merged.update(flags)
+    from_flag = set(flags)
+    for key in merged:
+        if key not in KEYS:
+            close = [k for k in KEYS if k.startswith(key[:4])]
+            hint = f"; did you mean {close[0]!r}?" if close else ""
+            raise InputError(source, f"unknown key {key!r}{hint}")
+
+    def w(key):
+        return _where(source, key, key in from_flag)
+
+    def path_of(key):
+        v = merged[key]
+        if not isinstance(v, str) or not v:
+            raise InputError(w(key), f"must be a file path, got {v!r}")
+        if key in from_flag or os.path.isabs(v):
+            return v
+        return os.path.join(base_dir, v)
+
+    if "mesh" not in merged:
+        raise InputError(source, "missing required key 'mesh' (the blade mesh file)")
+    if "units" not in merged:
+        raise InputError(source, "missing required key 'units' (mm, cm, m, in or ft): a mesh file carries no unit")
+    units = merged["units"]
+    if not isinstance(units, str):
+        raise InputError(w("units"), f"must be a string such as \"mm\", got {units!r}")
+    scale = length_scale(units, w("units"))
+
+    densities = []
+    for key, kind in (("density", "density"), ("material", "material")):
+        if key in merged:
+            v = merged[key]
+            items = v if isinstance(v, list) else [v]
+            for item in items:
+                if kind == "material" and not isinstance(item, str):
+                    raise InputError(w(key), f"must be a material name, got {item!r}")
+                if kind == "density":
+                    parse_density(item, w(key))
+                densities.append((kind, item))
+    if "density" in merged and "material" in merged:
+        if "density" in from_flag and "material" not in from_flag:
+            densities = [d for d in densities if d[0] == "density"]
+        elif "material" in from_flag and "density" not in from_flag:
+            densities = [d for d in densities if d[0] == "material"]
+        elif not (isinstance(merged["density"], list) or isinstance(merged["material"], list)):
+            raise InputError(source, "give either 'density' or 'material', not both")
+    if not densities:
+        raise InputError(source, "missing key 'density' or 'material': the tool does not guess a density")
+
+    def vec(key, length=False):
+        if key not in merged:
+            return None
+        v = parse_vec3(merged[key], w(key), key)
+        return tuple(x * scale for x in v) if length else v
+
+    def opt_num(key, integer=False):
+        return _num(merged[key], w(key), key, integer) if key in merged else None
+
+    name = merged.get("name", os.path.basename(str(merged["mesh"])))
+    if not isinstance(name, str):
+        raise InputError(w("name"), f"must be a string, got {name!r}")
+    blades = opt_num("blades", integer=True)
+    if blades is not None and not (1 <= blades <= 64):
+        raise InputError(w("blades"), f"must be between 1 and 64, got {blades}")
+    rotation = merged.get("rotation", "right")
+    if rotation not in ("right", "left"):
+        raise InputError(w("rotation"), f"must be \"right\" or \"left\", got {rotation!r}")
+    ref_fraction = opt_num("reference_fraction")
+    if ref_fraction is not None and not (0.0 < ref_fraction <= 1.0):
+        raise InputError(w("reference_fraction"), f"must be in (0, 1], got {ref_fraction}")
+    ref_radius = opt_num("reference_radius")
+    if ref_radius is not None and ref_radius <= 0:
+        raise InputError(w("reference_radius"), f"must be positive, got {ref_radius}")
+
+    # operating points
+    ops = []
+    if "operating_point" in merged and "rpm" in from_flag:
+        merged.pop("operating_point")  # --rpm replaces the job's operating points
+    if "operating_point" in merged:
+        tables = merged["operating_point"]
+        if not isinstance(tables, list) or not all(isinstance(t, dict) for t in tables):
+            raise InputError(source, "'operating_point' must be an array of tables ([[operating_point]])")
+        for i, t in enumerate(tables, 1):
+            where = f"{source}: operating_point {i}"
+            for k in t:
+                if k not in OPERATING_KEYS:
+                    raise InputError(where, f"unknown key {k!r}; expected {', '.join(sorted(OPERATING_KEYS))}")
+            if "rpm" not in t:
+                raise InputError(where, "missing required key 'rpm'")
+            rpm = _num(t["rpm"], where, "rpm")
+            if rpm < 0:
+                raise InputError(where, f"rpm must not be negative, got {rpm}")
+            nm = t.get("name", f"point {i}")
+            if not isinstance(nm, str):
+                raise InputError(where, f"name must be a string, got {nm!r}")
+            ba = _num(t["blade_angle"], where, "blade_angle") if "blade_angle" in t else None
+            pc = _num(t["pitch_change"], where, "pitch_change") if "pitch_change" in t else None
+            if ba is not None and pc is not None:
+                raise InputError(where, "give either blade_angle or pitch_change, not both")
+            ops.append(OperatingPoint(nm, rpm, ba, pc))
+    if "rpm" in merged:
+        v = merged["rpm"]
+        items = v if isinstance(v, list) else (str(v).split(",") if isinstance(v, str) else [v])
+        for r in items:
+            rpm = _num(r, w("rpm"), "rpm")
+            if rpm < 0:
+                raise InputError(w("rpm"), f"must not be negative, got {rpm}")
+            ops.append(OperatingPoint(f"{rpm:g} rpm", rpm))
+    ba_all = opt_num("blade_angle")
+    pc_all = opt_num("pitch_change")
+    if ba_all is not None and pc_all is not None:
+        raise InputError(source, "give either blade_angle (--blade-angle) or pitch_change (--pitch-change), not both")
+    if ba_all is not None or pc_all is not None:
+        # a job-wide (or flag) angle applies to the points that do not set their own; a flag
+        # overrides every point's own angle
+        flagged = ("blade_angle" in from_flag) or ("pitch_change" in from_flag)
+        ops = [
+            OperatingPoint(o.name, o.rpm, ba_all, pc_all)
+            if flagged or (o.blade_angle_deg is None and o.pitch_change_deg is None) else o
+            for o in ops
+        ]
+
+    sweep = parse_range(merged["sweep"], w("sweep"), "sweep") if "sweep" in merged else (-10.0, 90.0, 1.0)
+    rpm_sweep = parse_range(merged["rpm_sweep"], w("rpm_sweep"), "rpm_sweep") if "rpm_sweep" in merged else None
+
+    stations = merged.get("stations", 16)
+    if isinstance(stations, str):
+        parts = [p for p in stations.split(",") if p.strip()]
+        stations = parts[0] if len(parts) == 1 else parts
+    if isinstance(stations, list):
+        radii = tuple(_num(s, w("stations"), "station radius") * scale for s in stations)
+        if not radii or any(r <= 0 for r in radii):
+            raise InputError(w("stations"), "station radii must be positive")
+        stations = tuple(sorted(radii))
+    else:
+        stations = _num(stations, w("stations"), "stations", integer=True)
+        if not (1 <= stations <= 2000):
+            raise InputError(w("stations"), f"station count must be between 1 and 2000, got {stations}")
+
+    allowable = parse_stress(merged["allowable"], w("allowable")) if "allowable" in merged else None
+    proof = opt_num("proof_factor")
+    if proof is not None and proof <= 0:
+        raise InputError(w("proof_factor"), f"must be positive, got {proof}")
+    elements = opt_num("elements", integer=True)
+    if elements is not None and not (1 <= elements <= 50_000_000):
+        raise InputError(w("elements"), f"must be between 1 and 50 000 000, got {elements}")
+    element_size = opt_num("element_size")
+    if element_size is not None and element_size <= 0:
+        raise InputError(w("element_size"), f"must be positive, got {element_size}")
+    field_faces = opt_num("field_faces", integer=True)
+    if field_faces is not None and field_faces < 100:
+        raise InputError(w("field_faces"), f"must be at least 100, got {field_faces}")
+
+    lumped = []
+    if "lumped_mass" in merged:
+        tables = merged["lumped_mass"]
+        if not isinstance(tables, list) or not all(isinstance(t, dict) for t in tables):
+            raise InputError(source, "'lumped_mass' must be an array of tables ([[lumped_mass]])")
+        for i, t in enumerate(tables, 1):
+            where = f"{source}: lumped_mass {i}"
+            for k in t:
+                if k not in LUMPED_KEYS:
+                    raise InputError(where, f"unknown key {k!r}; expected {', '.join(sorted(LUMPED_KEYS))}")
+            for k in ("mass", "position"):
+                if k not in t:
+                    raise InputError(where, f"missing required key {k!r}")
+            nm = t.get("name", f"lumped mass {i}")
+            if not isinstance(nm, str):
+                raise InputError(where, f"name must be a string, got {nm!r}")
+            mass = parse_mass(t["mass"], where)
+            pos = tuple(x * scale for x in parse_vec3(t["position"], where, "position"))
+            lumped.append((nm, mass, pos))
+
+    cw = None
+    if "counterweight" in merged:
+        t = merged["counterweight"]
+        where = f"{source}: counterweight"
+        if not isinstance(t, dict):
+            raise InputError(where, "must be a table ([counterweight])")
+        for k in t:
+            if k not in COUNTERWEIGHT_KEYS:
+                raise InputError(where, f"unknown key {k!r}; expected {', '.join(sorted(COUNTERWEIGHT_KEYS))}")
+        for k in ("radius", "arm", "clocking"):
+            if k not in t:
+                raise InputError(where, f"missing required key {k!r}")
+        from .units import parse_moment
+
+        target = parse_moment(t["target_ctm"], where) if "target_ctm" in t else 0.0
+        arm = _num(t["arm"], where, "arm") * scale
+        if arm <= 0:
+            raise InputError(where, "arm must be positive")
+        cw = CounterweightRequest(
+            radius_m=_num(t["radius"], where, "radius") * scale,
+            arm_m=arm,
+            clocking_deg=_num(t["clocking"], where, "clocking"),
+            blade_angle_deg=_num(t["blade_angle"], where, "blade_angle") if "blade_angle" in t else None,
+            rpm=_num(t["rpm"], where, "rpm") if "rpm" in t else None,
+            target_ctm_Nm=target,
+        )
+
+    set_reports = ()
+    if "set" in merged:
+        t = merged["set"]
+        if not isinstance(t, dict) or set(t) - {"reports"} or not isinstance(t.get("reports", []), list):
+            raise InputError(f"{source}: set", "expected a table with one key 'reports' (a list of report files)")
+        set_reports = tuple(
+            r if os.path.isabs(r) else os.path.join(base_dir, r) for r in t.get("reports", []) if isinstance(r, str)
+        )
+
+    return Job(
+        source=source,
+        mesh=path_of("mesh"),
+        units=units,
+        name=name,
+        densities=tuple(densities),
+        blades=blades or 1,
+        hub_centre_m=vec("hub_centre", True) or (0.0, 0.0, 0.0),
+        thrust_axis=vec("thrust_axis") or (0.0, 0.0, 1.0),
+        pitch_axis=vec("pitch_axis") or (0.0, 1.0, 0.0),
+        pitch_point_m=vec("pitch_point", True),
+        precone_deg=opt_num("precone"),
+        rotation=rotation,
+        reference_fraction=ref_fraction if ref_fraction is not None else 0.75,
+        reference_radius_m=ref_radius * scale if ref_radius is not None else None,
+        operating_points=tuple(ops),
+        sweep_deg=sweep,
+        rpm_sweep=rpm_sweep,
+        stations=stations,
+        allowable_Pa=allowable,
+        proof_factor=proof if proof is not None else 2.0,
+        elements=elements,
+        element_size_m=element_size * scale if element_size is not None else None,
+        field_faces=field_faces,
+        lumped=tuple(lumped),
+        counterweight=cw,
+        reference=path_of("reference") if "reference" in merged else None,
+        limits=path_of("limits") if "limits" in merged else None,
+        set_reports=set_reports,
+        raw=dict(merged),
+    )
+
+
+def load_job(path, flags: dict | None = None) -> Job:
+    """Read and validate a job file, with command-line flags overriding its keys."""
+    data = read_job_file(path)
+    return build_job(data, str(path), os.path.dirname(os.path.abspath(str(path))), flags)
+
+
+def hub_frame_of(job: Job):
+    """The :class:`~bladesolid.frame.HubFrame` a job describes (validated, keys named)."""
+    from .frame import hub_frame
+
+    f = hub_frame(
+        origin=job.hub_centre_m,
+        thrust_axis=job.thrust_axis,
+        pitch_axis=job.pitch_axis,
+        pitch_point=job.pitch_point_m,
+        rotation=job.rotation,
+        precone_deg=job.precone_deg,
+        source=job.source,
+    )
+    return f
+
+
+def check_pitch_point(frame, cg_hub: np.ndarray, tip_radius_m: float, source: str) -> None:
+    """Refuse a pitch point that puts the pitch axis far off the blade: farther from the
+    blade's centre of gravity than half the tip radius (common practice, no source)."""
+    P = frame.P
+    d = cg_hub - P
+    off = float(np.linalg.norm(d - (d @ frame.e) * frame.e))
+    if off > 0.5 * max(tip_radius_m, 1e-9):
+        raise InputError(
+            source,
+            f"pitch_point puts the pitch axis {off:.4g} m from the blade's centre of gravity "
+            f"(more than half the tip radius {tip_radius_m:.4g} m); check the point and its unit",
+        )
