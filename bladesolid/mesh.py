@@ -50,10 +50,23 @@ def _quiet_stdout():
     try:
         with open(os.devnull, "w") as devnull:
             os.dup2(devnull.fileno(), fd)
-            yield
+            try:
+                yield
+            finally:
+                _flush_c_stdio()
     finally:
         os.dup2(saved, fd)
         os.close(saved)
+
+
+def _flush_c_stdio():
+    """Flush the C library's stdout buffer (where the C++ code's prints wait)."""
+    try:
+        import ctypes
+
+        ctypes.CDLL(None).fflush(None)
+    except (OSError, AttributeError):  # pragma: no cover - non-POSIX
+        pass
 
 
 def tet_signed_volumes(nodes: np.ndarray, tets: np.ndarray) -> np.ndarray:
