@@ -12,6 +12,8 @@ import math
 import os
 import sys
 
+import numpy as np
+
 from . import CAUTION, __version__
 from .errors import InputError
 
@@ -119,7 +121,10 @@ def _job(args):
 def _console(stderr=False):
     from rich.console import Console
 
-    return Console(stderr=stderr, highlight=False, soft_wrap=False)
+    con = Console(stderr=stderr, highlight=False, soft_wrap=False)
+    if not con.is_terminal:
+        con = Console(stderr=stderr, highlight=False, soft_wrap=False, width=130)
+    return con
 
 
 def _progress(console):
@@ -185,25 +190,31 @@ def _print_mass(con, blade, props, us):
     from rich.table import Table
 
     cv, lab = _conv(us)
-    t = Table(title=f"Mass properties — {blade.name}", title_justify="left", show_header=True)
-    t.add_column("quantity")
-    t.add_column("value", justify="right")
-    t.add_column("unit")
-    t.add_row("mass", _fmt(cv(props.mass_kg, "mass")), lab("mass"))
-    t.add_row("volume", _fmt(cv(props.volume_m3, "volume")), lab("volume"))
-    t.add_row("centre of gravity (hub frame)", _vec(cv(props.cg_m, "length")), lab("length"))
-    t.add_row("static moment m·|c⊥|", _fmt(cv(props.static_moment_kgm, "static_moment")), lab("static_moment"))
+    t = Table(title=f"Mass properties — {blade.name}", title_justify="left")
+    for name, just in (("quantity", "left"), ("value  |  x", "right"), ("y", "right"), ("z", "right"), ("unit", "left")):
+        t.add_column(name, justify=just)
+
+    def row(label, value, unit, digits=6):
+        if np.ndim(value) == 0:
+            t.add_row(label, _fmt(float(value), digits), "", "", unit)
+        else:
+            t.add_row(label, *[_fmt(float(x), digits) for x in value], unit)
+
+    row("mass", cv(props.mass_kg, "mass"), lab("mass"))
+    row("volume", cv(props.volume_m3, "volume"), lab("volume"))
+    row("centre of gravity (hub frame)", cv(props.cg_m, "length"), lab("length"))
+    row("static moment m·|c⊥|", cv(props.static_moment_kgm, "static_moment"), lab("static_moment"))
     for name, I in (("inertia about hub centre", props.inertia_hub_kgm2), ("inertia about CG", props.inertia_cg_kgm2)):
         I = cv(I, "inertia")
-        for i, row in enumerate(I):
-            t.add_row(name if i == 0 else "", _vec(row), lab("inertia"))
-    t.add_row("principal moments (about CG)", _vec(cv(props.principal_moments_kgm2, "inertia")), lab("inertia"))
+        for i, axis in enumerate("xyz"):
+            row(f"{name}, row {axis}" if i == 0 else f"  row {axis}", I[i], lab("inertia"))
+    row("principal moments about CG", cv(props.principal_moments_kgm2, "inertia"), lab("inertia"))
     for i, col in enumerate(props.principal_axes.T):
-        t.add_row(f"principal axis {i + 1}", _vec(col, 5), "unit vector")
+        row(f"principal axis {i + 1}", col, "unit vector", 5)
     a = blade.modelled_angle
     if a is not None:
-        t.add_row(f"blade angle at r = {_fmt(cv(a.radius_m, 'length'), 5)} {lab('length')}", _fmt(a.angle_deg, 5), "deg")
-    t.add_row("surface check (relative)", f"{props.surface_check_rel_error:.2e}", props.surface_check_method)
+        row(f"modelled blade angle at r = {_fmt(cv(a.radius_m, 'length'), 5)} {lab('length')}", a.angle_deg, "deg", 5)
+    t.add_row("surface check (relative)", f"{props.surface_check_rel_error:.1e}", "", "", props.surface_check_method)
     con.print(t)
     con.print(f"[dim]{CAUTION}[/dim]")
 
@@ -222,73 +233,6 @@ def _operating(blade, job, need_default: bool = True):
     ]
 
 
-def loads_report(blade, job, ops):
-    """The report dict of the loads command (and of ``check``)."""
-    from . import api, report
-    from .loads import PROOF_SOURCE, proof_load
-
-    props = api.mass_properties(blade)
-    data = report.base_report(blade)
-    data["mass_properties"] = report.mass_section(props)
-    data["blade_angle"] = report.blade_angle_section(blade)
-    data["operating_points"] = [report.operating_point_row(o) for o in ops]
-    lo, hi, step = job.sweep_deg
-    betas, ctm, k = api.pitch_sweep(blade, ops[0].rpm, lo, hi, step)
-    data["pitch_sweep"] = report.sweep_rows(betas, ctm, k)
-    curve = api.blade_curve(blade)
-    data["ctm_curve"] = {
-        "form": "CTM = (2*pi*rpm/60)^2 * (a0 + a1 cos b + b1 sin b + a2 cos 2b + b2 sin 2b), b = blade angle",
-        "coefficients_kgm2": dict(zip(["a0", "a1", "b1", "a2", "b2"], curve.coefficients.tolist())),
-        "zero_ctm_blade_angles_deg": curve.zeros(-180.0, 180.0),
-        "zero_ctm_in_sweep_deg": curve.zeros(lo, hi),
-    }
-    biggest = max(ops, key=lambda o: o.radial_pull_N)
-    data["proof_load"] = {
-        "factor": job.proof_factor,
-        "source": PROOF_SOURCE,
-        "largest_radial_pull_N": biggest.radial_pull_N,
-        "at_operating_point": biggest.name,
-        "at_rpm": biggest.rpm,
-        "proof_load_N": proof_load(biggest.radial_pull_N, job.proof_factor),
-    }
-    data["rotor"] = {
-        "blades": job.blades,
-        "polar_inertia_per_blade_kgm2": ops[0].polar_inertia_kgm2,
-        "polar_inertia_rotor_kgm2": ops[0].polar_inertia_kgm2 * job.blades,
-        "note": "blades only, at the first operating point's blade angle; hub and spinner not included",
-    }
-    if job.counterweight is not None:
-        data["counterweight_sizing"] = counterweight_section(blade, job, ops[0])
-    return data
-
-
-def counterweight_section(blade, job, op0):
-    from .loads import counterweight_position, size_counterweight
-
-    cw = job.counterweight
-    a = blade.modelled_angle
-    if a is None:
-        raise InputError(job.source, "counterweight sizing needs the modelled blade angle (chord direction)")
-    chord = a.leading_edge - a.trailing_edge
-    pos = counterweight_position(blade.frame, chord, cw.radius_m, cw.arm_m, cw.clocking_deg)
-    beta = cw.blade_angle_deg if cw.blade_angle_deg is not None else op0.blade_angle_deg
-    rpm = cw.rpm if cw.rpm is not None else op0.rpm
-    try:
-        s = size_counterweight(blade.moments, blade.frame, blade.modelled_deg, pos, beta, rpm, cw.target_ctm_Nm)
-    except ValueError as exc:
-        raise InputError(f"{job.source}: counterweight", str(exc)) from None
-    return {
-        "mass_kg": s.mass_kg,
-        "position_hub_m": s.position_m,
-        "blade_angle_deg": beta,
-        "rpm": rpm,
-        "target_ctm_Nm": cw.target_ctm_Nm,
-        "ctm_per_kg_Nm": s.ctm_per_kg_Nm,
-        "added_radial_pull_N": s.added_radial_pull_N,
-        "net_ctm_Nm": s.net_ctm_Nm,
-    }
-
-
 def cmd_loads(args) -> int:
     from . import api, report
 
@@ -301,6 +245,8 @@ def cmd_loads(args) -> int:
     blade = api.blade_from_job(job, elements=False, progress=_progress(err))
     _warn(err, blade)
     ops = _operating(blade, job)
+    from .review import loads_report
+
     data = loads_report(blade, job, ops)
     if args.json:
         report.atomic_write_text(args.json, report.dumps(data), args.force)
@@ -329,7 +275,9 @@ def _print_loads(con, blade, data, ops, us):
         ("speed", "rpm", lambda o: _fmt(o.rpm)),
         ("blade angle", "deg", lambda o: _fmt(o.blade_angle_deg, 5)),
         ("radial pull F·e", lab("force"), lambda o: _fmt(cv(o.radial_pull_N, "force"))),
-        ("centrifugal force (hub frame)", lab("force"), lambda o: _vec(cv(o.cf_N, "force"), 5)),
+        ("centrifugal force x (hub frame)", lab("force"), lambda o: _fmt(cv(float(o.cf_N[0]), "force"))),
+        ("centrifugal force y", lab("force"), lambda o: _fmt(cv(float(o.cf_N[1]), "force"))),
+        ("centrifugal force z", lab("force"), lambda o: _fmt(cv(float(o.cf_N[2]), "force"))),
         ("CTM (+ toward coarse)", lab("moment"), lambda o: _fmt(cv(o.ctm_Nm, "moment"))),
         ("out-of-plane bending at hub (+ tip forward)", lab("moment"), lambda o: _fmt(cv(o.bending_out_of_plane_Nm, "moment"))),
         ("in-plane bending at hub (+ tip with rotation)", lab("moment"), lambda o: _fmt(cv(o.bending_in_plane_Nm, "moment"))),

@@ -221,3 +221,185 @@ def csv_text(rows: list[dict], columns: list[str] | None = None) -> str:
     for r in rows:
         w.writerow({k: ("" if r.get(k) is None else r.get(k)) for k in cols})
     return buf.getvalue()
+
+
+# --- HTML ---------------------------------------------------------------------------------
+
+_CSS = """
+body{font-family:system-ui,-apple-system,'Segoe UI',Roboto,sans-serif;margin:0;color:#1d2329;background:#f6f7f4}
+header{background:#21413c;color:#f4f1e8;padding:18px 32px}
+header h1{margin:0;font-size:22px;font-weight:600}
+header p{margin:4px 0 0;font-size:13px;opacity:.85}
+main{max-width:1180px;margin:0 auto;padding:18px 32px 48px}
+section{background:#fff;border:1px solid #dcdfd8;border-radius:6px;padding:14px 20px;margin:16px 0}
+h2{font-size:17px;margin:4px 0 10px;color:#21413c}
+table{border-collapse:collapse;font-size:13px;margin:6px 0}
+th,td{padding:3px 10px;border-bottom:1px solid #e6e8e3;text-align:right;white-space:nowrap}
+th:first-child,td:first-child{text-align:left}
+th{background:#eef0ea;font-weight:600}
+.caution{background:#fff6dc;border:1px solid #e2c46b;padding:10px 14px;border-radius:6px;font-size:13px}
+.warn{color:#8a4b00}
+.verdict-ok{color:#176b3a;font-weight:600}.verdict-bad{color:#a3221b;font-weight:600}
+figure{margin:8px 0;display:inline-block;vertical-align:top}
+figure img{max-width:100%;border:1px solid #dcdfd8;border-radius:4px}
+figcaption{font-size:12px;color:#555}
+.grid img{max-width:560px}
+code{font-size:12px}
+"""
+
+
+def _e(x) -> str:
+    import html
+
+    return html.escape(str(x), quote=True)
+
+
+def _num(x, digits=6) -> str:
+    if x is None:
+        return "—"
+    if isinstance(x, (list, tuple)):
+        return "[" + ", ".join(_num(v, digits) for v in x) + "]"
+    if isinstance(x, bool):
+        return str(x)
+    if isinstance(x, (int, float)):
+        if isinstance(x, float) and not math.isfinite(x):
+            return "—"
+        return f"{x:.{digits}g}"
+    return _e(x)
+
+
+def _table(rows, headers) -> str:
+    head = "".join(f"<th>{_e(h)}</th>" for h in headers)
+    body = "".join("<tr>" + "".join(f"<td>{c}</td>" for c in r) + "</tr>" for r in rows)
+    return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
+
+
+def _img(data: bytes, caption: str) -> str:
+    import base64
+
+    b64 = base64.b64encode(data).decode("ascii")
+    return f'<figure><img alt="{_e(caption)}" src="data:image/png;base64,{b64}"><figcaption>{_e(caption)}</figcaption></figure>'
+
+
+def review_html(data: dict, images: dict | None = None, files: list | None = None) -> str:
+    """A single self-contained HTML page of a review report dict (numbers exactly as in the JSON).
+
+    images : {caption: PNG bytes}, embedded as data URIs; every user-supplied string is escaped.
+    """
+    d = jsonable(data)
+    images = images or {}
+    inp = d.get("input", {})
+    parts = []
+    title = f"Blade review — {inp.get('name', '')}"
+    parts.append(
+        f"<header><h1>{_e(title)}</h1><p>{_e(d.get('tool', {}).get('name', 'bladesolid'))} "
+        f"{_e(d.get('tool', {}).get('version', ''))} · mesh {_e(inp.get('mesh', ''))} "
+        f"({_e(inp.get('units', ''))}) · report schema {_e(d.get('schema', ''))}</p></header><main>"
+    )
+    parts.append(f'<div class="caution"><b>Caution.</b> {_e(d.get("caution", ""))}</div>')
+    if d.get("warnings"):
+        parts.append("<section><h2>Warnings</h2><ul>" + "".join(f'<li class="warn">{_e(w)}</li>' for w in d["warnings"]) + "</ul></section>")
+
+    # inputs
+    rows = [[_e(f"body {b['body']}"), _e(b["material"]), _num(b["density_kg_m3"]), _e(b.get("density_source", ""))]
+            for b in inp.get("bodies", [])]
+    sec = "<section><h2>Inputs</h2>" + _table(rows, ["body", "material / density as given", "density kg/m³", "source"])
+    lm = inp.get("lumped_masses", [])
+    if lm:
+        sec += _table([[_e(p["name"]), _num(p["mass_kg"]), _num(p["position_model_m"])] for p in lm],
+                      ["lumped mass", "mass kg", "position (model frame) m"])
+    hf = inp.get("hub_frame", {})
+    sec += _table([[_e(k), _num(v) if not isinstance(v, str) else _e(v)] for k, v in hf.items()], ["hub frame", "value"])
+    parts.append(sec + "</section>")
+
+    mp = d.get("mass_properties")
+    if mp:
+        rows = [
+            ["mass", _num(mp["mass_kg"]), "kg"],
+            ["volume", _num(mp["volume_m3"]), "m³"],
+            ["centre of gravity (hub frame)", _num(mp["cg_m"]), "m"],
+            ["static moment", _num(mp["static_moment_kgm"]), "kg·m"],
+            ["inertia about hub centre", "<br>".join(_num(r) for r in mp["inertia_hub_kgm2"]), "kg·m²"],
+            ["inertia about CG", "<br>".join(_num(r) for r in mp["inertia_cg_kgm2"]), "kg·m²"],
+            ["principal moments about CG", _num(mp["principal_moments_kgm2"]), "kg·m²"],
+            ["surface check (relative)", _num(mp["surface_check_rel_error"], 2), _e(mp.get("surface_check_method", ""))],
+        ]
+        ba = d.get("blade_angle", {})
+        if ba:
+            rows.append([f"modelled blade angle at r = {_num(ba.get('reference_radius_m'), 5)} m",
+                         _num(ba.get("modelled_deg"), 5), "deg"])
+        parts.append("<section><h2>Mass properties</h2>" + _table(rows, ["quantity", "value", "unit"]) + "</section>")
+
+    ops = d.get("operating_points")
+    if ops:
+        figs = [
+            ("speed", "rpm", "rpm"), ("blade angle", "blade_angle_deg", "deg"), ("radial pull", "radial_pull_N", "N"),
+            ("CTM (+ toward coarse)", "ctm_Nm", "N·m"),
+            ("out-of-plane bending at hub", "bending_out_of_plane_Nm", "N·m"),
+            ("in-plane bending at hub", "bending_in_plane_Nm", "N·m"),
+            ("centrifugal pitch stiffness", "pitch_stiffness_Nm_per_rad", "N·m/rad"),
+            ("feathering moment of inertia", "feathering_inertia_kgm2", "kg·m²"),
+            ("free-pitch frequency ratio ν/Ω", "free_pitch_frequency_ratio", "—"),
+            ("polar moment of inertia per blade", "polar_inertia_kgm2", "kg·m²"),
+        ]
+        rows = [[_e(label), _e(unit)] + [_num(o.get(key)) for o in ops] for label, key, unit in figs]
+        sec = "<section><h2>Centrifugal loads</h2>" + _table(rows, ["figure", "unit"] + [o.get("name", "") for o in ops])
+        pl = d.get("proof_load")
+        if pl:
+            sec += (f"<p>Centrifugal proof load <b>{_num(pl['proof_load_N'])} N</b> = {_num(pl['factor'])} × "
+                    f"{_num(pl['largest_radial_pull_N'])} N ({_e(pl['at_operating_point'])}); {_e(pl['source'])}.</p>")
+        cc = d.get("ctm_curve")
+        if cc:
+            z = ", ".join(_num(v, 5) for v in cc.get("zero_ctm_in_sweep_deg", [])) or "none in the sweep range"
+            sec += f"<p>CTM zero at blade angles: {z} deg. {_e(cc.get('form', ''))}</p>"
+        cw = d.get("counterweight_sizing")
+        if cw:
+            sec += (f"<p>Counterweight for a net CTM of {_num(cw['target_ctm_Nm'])} N·m at {_num(cw['blade_angle_deg'])} deg, "
+                    f"{_num(cw['rpm'])} rpm: <b>{_num(cw['mass_kg'])} kg</b>, adding {_num(cw['added_radial_pull_N'])} N radial pull.</p>")
+        parts.append(sec + "</section>")
+
+    span = d.get("spanwise")
+    if span:
+        cols = [("radius_m", "radius m"), ("area_m2", "area m²"), ("mass_outboard_kg", "mass outboard kg"),
+                ("cf_outboard_N", "tension N"), ("stress_Pa", "P/A Pa"), ("ctm_outboard_Nm", "CTM outboard N·m"),
+                ("ctm_strip_outboard_Nm", "strip CTM N·m"), ("margin_of_safety", "MS (centrifugal only)")]
+        cols = [c for c in cols if c[0] in span[0]]
+        rows = [[_num(r.get(k), 5) for k, _ in cols] for r in span]
+        note = d.get("spanwise_note", "")
+        parts.append(f"<section><h2>Spanwise</h2><p>{_e(note)}</p>" + _table(rows, [h for _, h in cols]) + "</section>")
+
+    hs = d.get("hot_spots")
+    if hs:
+        rows = [[_e(r.get("region")), _num(r.get("ctm_share_pct"), 4), _num(r.get("radial_pull_share_pct"), 4),
+                 _num(r.get("mass_share_pct"), 4)] for r in hs.get("regions", [])]
+        parts.append("<section><h2>Hot spots</h2>" + _table(rows, ["region", "CTM share %", "radial pull share %", "mass share %"])
+                     + f"<p>{_e(hs.get('note', ''))}</p></section>")
+
+    cmp_ = d.get("comparison")
+    if cmp_:
+        ok = cmp_.get("verdict") == "within limits"
+        dl = cmp_.get("delta", {})
+        rows = [[_e(k), _num(v)] for k, v in dl.items()]
+        reasons = "".join(f"<li>{_e(r)}</li>" for r in cmp_.get("reasons", []))
+        reg = cmp_.get("registration", {})
+        parts.append(
+            f"<section><h2>Comparison with the reference</h2><p class=\"{'verdict-ok' if ok else 'verdict-bad'}\">"
+            f"{_e(cmp_.get('verdict', ''))}</p><ul>{reasons}</ul>"
+            + _table(rows, ["delta (this blade − reference)", "value (SI)"])
+            + f"<p>registration RMS {_num(reg.get('rms_m'))} m, max {_num(reg.get('max_m'))} m; removed volume "
+            f"{_num(cmp_.get('removed_volume_m3'))} m³, added {_num(cmp_.get('added_volume_m3'))} m³.</p>"
+            f"<p>{_e(cmp_.get('limits_note', ''))}</p></section>"
+        )
+    match = d.get("match")
+    if match:
+        parts.append("<section><h2>Blade set</h2><pre>" + _e(json.dumps(match, indent=1)[:20000]) + "</pre></section>")
+
+    if images:
+        parts.append('<section><h2>Pictures</h2><div class="grid">' + "".join(_img(b, c) for c, b in images.items()) + "</div></section>")
+    if files:
+        parts.append("<section><h2>Files in this folder</h2><ul>" + "".join(f"<li><code>{_e(f)}</code></li>" for f in files) + "</ul></section>")
+    parts.append("</main>")
+    return (
+        "<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\">"
+        f"<title>{_e(title)}</title><style>{_CSS}</style></head><body>" + "".join(parts) + "</body></html>\n"
+    )

@@ -1,0 +1,318 @@
+"""The whole review of one blade (``bladesolid check``): every stage, one output folder.
+
+``run_review(job)`` computes everything in memory (mass, loads, sweeps, spanwise, element
+fields, hot spots, comparison, set matching) and ``write_review(review, folder)`` writes the
+JSON report, CSV tables, PNG plots and renders, the VTU element file and a self-contained
+HTML page — into a staged temporary folder that is moved into place only when complete.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import os
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .errors import InputError
+
+STAGES = ("load", "mesh", "integrate", "loads", "spanwise", "fields", "compare", "views", "report")
+
+
+@dataclass
+class Review:
+    """Everything a review produced (in memory). ``report`` is the JSON report dict."""
+
+    job: object
+    blade: object
+    report: dict
+    ops: list
+    sweep: tuple
+    rpm_sweep: tuple | None = None
+    span: object | None = None
+    fields: object | None = None
+    hot_spots: object | None = None
+    comparison: object | None = None
+    timings_s: dict = field(default_factory=dict)
+
+
+class _Clock:
+    def __init__(self, progress):
+        import time
+
+        self._time = time.perf_counter
+        self.progress = progress or (lambda stage, i, n: None)
+        self.timings = {}
+        self._stage = None
+        self._t0 = None
+
+    def start(self, stage):
+        now = self._time()
+        if self._stage is not None:
+            self.timings[self._stage] = self.timings.get(self._stage, 0.0) + now - self._t0
+        self._stage, self._t0 = stage, now
+        if stage is not None:
+            self.progress(stage, STAGES.index(stage) if stage in STAGES else 0, len(STAGES))
+
+    def stop(self):
+        self.start(None)
+        return self.timings
+
+
+def rpm_sweep_rows(blade, ops, rpm_range) -> list[dict]:
+    """CTM and radial pull over speed at the first operating point's blade angle (Ω² scaling)."""
+    lo, hi, step = rpm_range
+    n = int(math.floor((hi - lo) / step + 1e-9)) + 1
+    rpms = lo + step * np.arange(n)
+    ref = ops[0]
+    w0 = ref.omega_rad_s
+    scale = (rpms * 2 * math.pi / 60) ** 2 / (w0**2 if w0 > 0 else 1.0)
+    if w0 == 0:
+        from . import api
+
+        one = api.loads_at(blade, 60.0 / (2 * math.pi), ref.blade_angle_deg)  # Ω = 1 rad/s
+        base_ctm, base_pull, base_k = one.ctm_Nm, one.radial_pull_N, one.pitch_stiffness_Nm_per_rad
+        scale = (rpms * 2 * math.pi / 60) ** 2
+    else:
+        base_ctm, base_pull, base_k = ref.ctm_Nm, ref.radial_pull_N, ref.pitch_stiffness_Nm_per_rad
+    return [
+        {"rpm": float(r), "blade_angle_deg": ref.blade_angle_deg, "ctm_Nm": float(base_ctm * s),
+         "radial_pull_N": float(base_pull * s), "pitch_stiffness_Nm_per_rad": float(base_k * s)}
+        for r, s in zip(rpms, scale)
+    ]
+
+
+def run_review(job, progress=None, *, with_views: bool = True) -> Review:
+    """Run every stage of the review for a validated job (nothing is written)."""
+    from . import api
+
+    clock = _Clock(progress)
+    clock.start("load")
+    stage_cb = {"load": "load", "integrate surface": "integrate", "mesh": "mesh", "integrate elements": "integrate"}
+    blade = api.blade_from_job(job, elements=True, progress=lambda s: clock.start(stage_cb.get(s, "load")))
+    if not job.operating_points:
+        raise InputError(job.source, "no operating point: add [[operating_point]] with an rpm (or --rpm N)")
+    clock.start("loads")
+    ops = [api.loads_at(blade, o.rpm, o.blade_angle_deg, o.pitch_change_deg, name=o.name) for o in job.operating_points]
+    data = loads_report(blade, job, ops)
+    lo, hi, step = job.sweep_deg
+    sweep = api.pitch_sweep(blade, ops[0].rpm, lo, hi, step)
+    rpm_rows = None
+    if job.rpm_sweep is not None:
+        rpm_rows = rpm_sweep_rows(blade, ops, job.rpm_sweep)
+        data["rpm_sweep"] = rpm_rows
+    data["timings_s"] = {}
+    rv = Review(job=job, blade=blade, report=data, ops=ops, sweep=sweep, rpm_sweep=rpm_rows)
+
+    clock.start("spanwise")
+    from . import span as span_mod
+
+    rv.span = span_mod.span_table(blade, ops[0].rpm, ops[0].blade_angle_deg, stations=job.stations,
+                                  allowable_Pa=job.allowable_Pa)
+    data["spanwise"] = span_mod.spanwise_rows(rv.span)
+    data["spanwise_note"] = getattr(span_mod, "SPANWISE_NOTE", "centrifugal part only")
+
+    clock.start("fields")
+    from . import fields as fields_mod
+
+    rv.fields = fields_mod.element_fields(blade, ops[0].rpm, ops[0].blade_angle_deg)
+    rv.hot_spots = fields_mod.hot_spots(blade, rv.fields)
+    data["hot_spots"] = fields_mod.hot_spots_section(rv.hot_spots)
+    data["element_fields"] = fields_mod.fields_summary(rv.fields)
+
+    if job.reference:
+        clock.start("compare")
+        from . import compare as compare_mod
+
+        rv.comparison = compare_mod.compare_job(job, ops[0])
+        data["comparison"] = compare_mod.comparison_section(rv.comparison)
+    if job.set_reports:
+        clock.start("compare")
+        from . import compare as compare_mod
+
+        data["match"] = compare_mod.match_section(compare_mod.match_reports(list(job.set_reports), blades=job.blades))
+    rv.timings_s = clock.stop()
+    data["timings_s"] = dict(rv.timings_s)
+    return rv
+
+
+def loads_report(blade, job, ops):
+    """The report dict of the ``loads`` command (and the core of ``check``)."""
+    from . import api, report
+    from .loads import PROOF_SOURCE, proof_load
+
+    props = api.mass_properties(blade)
+    data = report.base_report(blade)
+    data["mass_properties"] = report.mass_section(props)
+    data["blade_angle"] = report.blade_angle_section(blade)
+    data["operating_points"] = [report.operating_point_row(o) for o in ops]
+    lo, hi, step = job.sweep_deg
+    betas, ctm, k = api.pitch_sweep(blade, ops[0].rpm, lo, hi, step)
+    data["pitch_sweep"] = report.sweep_rows(betas, ctm, k)
+    curve = api.blade_curve(blade)
+    data["ctm_curve"] = {
+        "form": "CTM = (2*pi*rpm/60)^2 * (a0 + a1 cos b + b1 sin b + a2 cos 2b + b2 sin 2b), b = blade angle",
+        "coefficients_kgm2": dict(zip(["a0", "a1", "b1", "a2", "b2"], curve.coefficients.tolist())),
+        "zero_ctm_blade_angles_deg": curve.zeros(-180.0, 180.0),
+        "zero_ctm_in_sweep_deg": curve.zeros(lo, hi),
+    }
+    biggest = max(ops, key=lambda o: o.radial_pull_N)
+    data["proof_load"] = {
+        "factor": job.proof_factor,
+        "source": PROOF_SOURCE,
+        "largest_radial_pull_N": biggest.radial_pull_N,
+        "at_operating_point": biggest.name,
+        "at_rpm": biggest.rpm,
+        "proof_load_N": proof_load(biggest.radial_pull_N, job.proof_factor),
+    }
+    data["rotor"] = {
+        "blades": job.blades,
+        "polar_inertia_per_blade_kgm2": ops[0].polar_inertia_kgm2,
+        "polar_inertia_rotor_kgm2": ops[0].polar_inertia_kgm2 * job.blades,
+        "note": "blades only, at the first operating point's blade angle; hub and spinner not included",
+    }
+    if job.counterweight is not None:
+        data["counterweight_sizing"] = counterweight_section(blade, job, ops[0])
+    return data
+
+
+def counterweight_section(blade, job, op0):
+    from .loads import counterweight_position, size_counterweight
+
+    cw = job.counterweight
+    a = blade.modelled_angle
+    if a is None:
+        raise InputError(job.source, "counterweight sizing needs the modelled blade angle (chord direction)")
+    chord = a.leading_edge - a.trailing_edge
+    pos = counterweight_position(blade.frame, chord, cw.radius_m, cw.arm_m, cw.clocking_deg)
+    beta = cw.blade_angle_deg if cw.blade_angle_deg is not None else op0.blade_angle_deg
+    rpm = cw.rpm if cw.rpm is not None else op0.rpm
+    try:
+        s = size_counterweight(blade.moments, blade.frame, blade.modelled_deg, pos, beta, rpm, cw.target_ctm_Nm)
+    except ValueError as exc:
+        raise InputError(f"{job.source}: counterweight", str(exc)) from None
+    return {
+        "mass_kg": s.mass_kg,
+        "position_hub_m": s.position_m,
+        "blade_angle_deg": beta,
+        "rpm": rpm,
+        "target_ctm_Nm": cw.target_ctm_Nm,
+        "ctm_per_kg_Nm": s.ctm_per_kg_Nm,
+        "added_radial_pull_N": s.added_radial_pull_N,
+        "net_ctm_Nm": s.net_ctm_Nm,
+    }
+
+
+def _png(fn, *args, **kw) -> bytes:
+    """Call a plotting function that writes a PNG path; return the bytes (temp file)."""
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as d:
+        p = os.path.join(d, "x.png")
+        fn(*args, p, **kw)
+        with open(p, "rb") as fh:
+            return fh.read()
+
+
+def write_review(rv: Review, folder, force: bool = False, progress=None, with_views: bool = True) -> list[str]:
+    """Write the review folder (staged: all or nothing). Returns the file names written."""
+    from . import report
+
+    clock = _Clock(progress)
+    data = rv.report
+    files: dict[str, bytes] = {}
+    images: dict[str, bytes] = {}
+
+    def add_text(name, text):
+        files[name] = text.encode("utf-8")
+
+    clock.start("views")
+    add_text("operating_points.csv", report.csv_text([
+        {k: v for k, v in report.operating_point_row(o).items() if not isinstance(v, np.ndarray)} for o in rv.ops
+    ]))
+    add_text("pitch_sweep.csv", report.csv_text(data["pitch_sweep"]))
+    if rv.rpm_sweep:
+        add_text("rpm_sweep.csv", report.csv_text(rv.rpm_sweep))
+    if data.get("spanwise"):
+        flat = [{k: v for k, v in r.items() if not isinstance(v, (list, tuple))} for r in data["spanwise"]]
+        add_text("spanwise.csv", report.csv_text(flat))
+    if data.get("hot_spots"):
+        add_text("hot_spots.csv", report.csv_text(data["hot_spots"]["regions"]))
+
+    if with_views:
+        from . import span as span_mod
+        from . import views
+
+        betas, ctm, k = rv.sweep
+        op0 = rv.ops[0]
+        title = f"{rv.blade.name} — CTM at {op0.rpm:g} rpm"
+        files["ctm_sweep.png"] = _png(views.plot_ctm_sweep, betas, ctm, k, op0.blade_angle_deg, title=title)
+        images[f"CTM and centrifugal pitch stiffness over blade angle at {op0.rpm:g} rpm"] = files["ctm_sweep.png"]
+        if rv.rpm_sweep:
+            r = np.array([x["rpm"] for x in rv.rpm_sweep])
+            files["rpm_sweep.png"] = _png(views.plot_rpm_sweep, r, np.array([x["ctm_Nm"] for x in rv.rpm_sweep]),
+                                          np.array([x["radial_pull_N"] for x in rv.rpm_sweep]))
+            images["CTM and radial pull over speed"] = files["rpm_sweep.png"]
+        if rv.span is not None:
+            files["spanwise.png"] = _png(span_mod.plot_span, rv.span)
+            images["Spanwise centrifugal tension, stress, CTM and area"] = files["spanwise.png"]
+        if rv.hot_spots is not None:
+            files["hot_spots.png"] = _png(views.plot_hot_spots, rv.hot_spots)
+            images["Hot spots: share of CTM, radial pull and mass by region"] = files["hot_spots.png"]
+        if rv.fields is not None:
+            for fname, label in (("ctm_Nm", "CTM contribution"), ("radial_pull_N", "radial pull contribution"),
+                                 ("mass_kg", "mass")):
+                for view in ("planform", "tip"):
+                    key = f"render_{fname.split('_')[0]}_{view}.png"
+                    files[key] = _png(views.render_field, rv.blade, rv.fields, fname, view=view)
+                    images[f"{label} per element, view from the {view}"] = files[key]
+            files["render_ctm_share.png"] = _png(views.render_field, rv.blade, rv.fields, "ctm_share_band", view="planform")
+            images["smallest element sets carrying 50 / 80 / 95 % of the CTM"] = files["render_ctm_share.png"]
+            stations = [rv.blade.reference_radius_m]
+            files["render_clipped.png"] = _png(views.render_clipped, rv.blade, rv.fields, "ctm_Nm", stations)
+            images["CTM contribution inside the blade, cut at the reference station"] = files["render_clipped.png"]
+            grid = views.element_grid(rv.blade, rv.fields)
+            files["elements.vtu"] = _vtu_bytes(views, grid)
+        if rv.comparison is not None and getattr(rv.comparison, "deviation", None) is not None:
+            from . import compare as compare_mod
+
+            if hasattr(compare_mod, "deviation_png"):
+                files["deviation.png"] = compare_mod.deviation_png(rv.comparison)
+                images["surface deviation of this blade from the reference"] = files["deviation.png"]
+
+    clock.start("report")
+    data["timings_s"] = {**rv.timings_s, **{f"write_{k}": v for k, v in clock.timings.items()}}
+    names = sorted(list(files) + ["report.json", "report.html"])
+    add_text("report.json", report.dumps(data))
+    add_text("report.html", report.review_html(data, images, names))
+    with report.staged_folder(folder, force) as tmp:
+        for name, blob in files.items():
+            with open(os.path.join(tmp, name), "wb") as fh:
+                fh.write(blob)
+    clock.stop()
+    return names
+
+
+def _vtu_bytes(views, grid) -> bytes:
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as d:
+        p = os.path.join(d, "elements.vtu")
+        views.write_vtu(grid, p, force=True)
+        with open(p, "rb") as fh:
+            return fh.read()
+
+
+def check(job, folder, force: bool = False, progress=None) -> Review:
+    """Run the whole review of ``job`` and write it to ``folder`` (the `check` command)."""
+    from .report import check_new_output  # noqa: F401  (folder checks happen in staged_folder)
+
+    p = os.path.abspath(os.fspath(folder))
+    if os.path.isdir(p) and os.listdir(p) and not force:
+        from .errors import OutputExistsError
+
+        raise OutputExistsError(p)
+    rv = run_review(job, progress)
+    write_review(rv, folder, force, progress)
+    return rv

@@ -1,0 +1,151 @@
+"""Job files and their flags: one set of keys, strict validation, flags override keys."""
+
+import math
+import tomllib
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from bladesolid.errors import InputError
+from bladesolid.job import EXAMPLE_JOB, build_job, hub_frame_of, load_job
+
+
+def minimal(**kw):
+    d = {"mesh": "blade.stl", "units": "mm", "material": "al-2025-t6"}
+    d.update(kw)
+    return d
+
+
+def test_example_job_parses_and_means_what_it_says(tmp_path):
+    data = tomllib.loads(EXAMPLE_JOB)
+    job = build_job(data, "job.toml", str(tmp_path))
+    assert job.units == "mm" and job.blades == 3
+    assert [o.name for o in job.operating_points] == ["take-off", "maximum continuous", "overspeed"]
+    assert job.operating_points[2].rpm == 2875
+    assert job.lumped[0][1] == pytest.approx(0.045)
+    assert job.lumped[0][2] == pytest.approx((-0.010, 0.160, 0.030))  # mm -> m
+    assert job.sweep_deg == (-10.0, 90.0, 1.0)
+    assert job.mesh.endswith("demo_blade.stl") and job.mesh.startswith(str(tmp_path))
+
+
+def test_flag_overrides_key():
+    job = build_job(minimal(rpm=2000, pitch_axis=[0, 1, 0]), "job.toml", ".", {"rpm": "2400", "pitch_axis": "1,0,0"})
+    assert [o.rpm for o in job.operating_points] == [2400.0]
+    assert job.pitch_axis == (1.0, 0.0, 0.0)
+
+
+def test_flag_blade_angle_overrides_every_point():
+    data = minimal(operating_point=[{"name": "a", "rpm": 2000, "blade_angle": 20}, {"name": "b", "rpm": 2500}])
+    job = build_job(data, "job.toml", ".", {"blade_angle": 31.0})
+    assert [o.blade_angle_deg for o in job.operating_points] == [31.0, 31.0]
+    job = build_job(dict(data, blade_angle=12.0), "job.toml", ".")
+    assert [o.blade_angle_deg for o in job.operating_points] == [20.0, 12.0]
+
+
+def test_us_units_and_density():
+    # a density in lb/in^3 and points in inches convert to SI (1 in = 25.4 mm exactly; NIST SP 811)
+    job = build_job({"mesh": "b.stl", "units": "in", "density": "0.1015 lb/in^3", "pitch_point": [1, 0, 0]}, "j", ".")
+    assert job.pitch_point_m == pytest.approx((0.0254, 0.0, 0.0))
+
+
+@pytest.mark.parametrize(
+    "data, fragment",
+    [
+        (minimal(pitch_axs=[0, 1, 0]), "unknown key 'pitch_axs'"),
+        ({"units": "mm", "material": "al-2025-t6"}, "missing required key 'mesh'"),
+        ({"mesh": "b.stl", "material": "al-2025-t6"}, "missing required key 'units'"),
+        ({"mesh": "b.stl", "units": "mm"}, "does not guess a density"),
+        (minimal(units="furlong"), "unknown length unit"),
+        (minimal(units=3), "must be a string"),
+        (minimal(rpm="fast"), "must be a number"),
+        (minimal(rpm=-5), "must not be negative"),
+        (minimal(blades=2.5), "whole number"),
+        (minimal(pitch_axis=[0, 1]), "three numbers"),
+        (minimal(pitch_axis="a,b,c"), "three numbers"),
+        (minimal(thrust_axis=[0, 0, float("nan")]), "thrust_axis must be finite"),
+        (minimal(sweep="0:90"), "FROM:TO:STEP"),
+        (minimal(sweep="90:0:1"), "TO >= FROM"),
+        (minimal(density="heavy", material=None) | {"material": "x"}, "density"),
+        (minimal(rotation="clockwise"), "right"),
+        (minimal(operating_point=[{"rpm": 2000, "speed": 3}]), "unknown key 'speed'"),
+        (minimal(operating_point=[{"name": "x"}]), "missing required key 'rpm'"),
+        (minimal(operating_point={"rpm": 1}), "array of tables"),
+        (minimal(lumped_mass=[{"mass": "1 kg"}]), "missing required key 'position'"),
+        (minimal(lumped_mass=[{"mass": "1 m", "position": [0, 0, 0]}]), "mass"),
+        (minimal(stations=0), "between 1 and 2000"),
+        (minimal(allowable="12 kg"), "stress"),
+        (minimal(counterweight={"radius": 100, "arm": 50}), "missing required key 'clocking'"),
+    ],
+)
+def test_bad_jobs_are_refused_with_the_key_named(data, fragment):
+    with pytest.raises(InputError) as ei:
+        build_job({k: v for k, v in data.items() if v is not None}, "job.toml", ".")
+    msg = str(ei.value)
+    assert msg.startswith("job.toml")
+    assert fragment in msg
+    assert "\n" not in msg
+
+
+@pytest.mark.parametrize(
+    "kw, fragment",
+    [
+        (dict(pitch_axis=[0, 1.2, 0]), "unit vector"),
+        (dict(pitch_axis=[0, 0, 0]), "zero vector"),
+        (dict(pitch_axis=[0, 0, 1]), "parallel"),
+        (dict(precone=45), "±30"),
+    ],
+)
+def test_bad_axes_named(kw, fragment):
+    job = build_job(minimal(**kw), "job.toml", ".")
+    with pytest.raises(InputError) as ei:
+        hub_frame_of(job)
+    assert fragment in str(ei.value)
+    assert str(ei.value).startswith("job.toml")
+
+
+def test_precone_tilts_pitch_axis_forward():
+    job = build_job(minimal(precone=3.0), "job.toml", ".")
+    f = hub_frame_of(job)
+    assert f.precone_deg == pytest.approx(3.0)
+    assert f.k == pytest.approx([0.0, math.sin(math.radians(3)), math.cos(math.radians(3))])
+
+
+def test_job_file_errors(tmp_path):
+    with pytest.raises(InputError, match="job file not found"):
+        load_job(tmp_path / "nope.toml")
+    bad = tmp_path / "bad.toml"
+    bad.write_text("mesh = [unclosed")
+    with pytest.raises(InputError, match="not valid TOML"):
+        load_job(bad)
+    binary = tmp_path / "bin.toml"
+    binary.write_bytes(b"\xff\xfe\x00garbage")
+    with pytest.raises(InputError):
+        load_job(binary)
+
+
+# property-based: any TOML-like dict either validates or raises InputError, never anything else
+_values = st.recursive(
+    st.none() | st.booleans() | st.integers(-10**6, 10**6) | st.floats(allow_nan=True) | st.text(max_size=12),
+    lambda children: st.lists(children, max_size=4) | st.dictionaries(st.text(max_size=8), children, max_size=3),
+    max_leaves=8,
+)
+_keys = st.sampled_from(["mesh", "units", "density", "material", "rpm", "pitch_axis", "sweep", "stations",
+                         "operating_point", "lumped_mass", "blades", "precone", "counterweight", "allowable",
+                         "reference_fraction", "name", "bogus"])
+
+
+@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.dictionaries(_keys, _values, max_size=8))
+def test_fuzz_job_parser_only_raises_input_error(data):
+    data = {k: v for k, v in data.items() if v is not None}
+    try:
+        job = build_job(data, "fuzz.toml", ".")
+    except InputError as exc:
+        assert "\n" not in str(exc)
+        return
+    try:
+        hub_frame_of(job)
+    except InputError:
+        pass
