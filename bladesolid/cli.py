@@ -326,6 +326,89 @@ def cmd_materials(args) -> int:
     return 0
 
 
+def cmd_span(args) -> int:
+    """Spanwise table: exact station cuts, section properties, centrifugal tension and stress."""
+    from . import api, report
+    from .span import SPAN_NOTE, plot_span, span_table, spanwise_rows
+
+    for out in (args.json, args.csv, args.plot):
+        if out:
+            report.check_new_output(out, args.force)
+    job = _job(args)
+    if not job.operating_points:
+        raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
+    err = _console(stderr=True)
+    blade = api.blade_from_job(job, elements=True, progress=_progress(err))
+    _warn(err, blade)
+    op = job.operating_points[0]
+    table = span_table(blade, op.rpm, op.blade_angle_deg, stations=job.stations, allowable_Pa=job.allowable_Pa,
+                       pitch_change_deg=op.pitch_change_deg)
+    rows = spanwise_rows(table)
+    if args.json:
+        data = report.base_report(blade)
+        data["blade_angle"] = report.blade_angle_section(blade)
+        data["spanwise_operating_point"] = {"name": op.name, "rpm": table.rpm, "blade_angle_deg": table.blade_angle_deg,
+                                            "allowable_Pa": table.allowable_Pa, "density_note": table.density_note}
+        data["spanwise"] = rows
+        data["spanwise_note"] = SPAN_NOTE
+        report.atomic_write_text(args.json, report.dumps(data), args.force)
+    if args.csv:
+        report.atomic_write_text(args.csv, report.csv_text(spanwise_rows(table, flat=True)), args.force)
+    if args.plot:
+        plot_span(table, args.plot, args.force)
+    _print_span(_console(), blade, table, rows, op, args.us)
+    return 0
+
+
+def _print_span(con, blade, table, rows, op, us):
+    from rich.table import Table
+
+    from .span import SPAN_NOTE
+
+    cv, lab = _conv(us)
+    if us:
+        lu, ls = "in", cv(1.0, "length")
+    elif blade.units == "mm":
+        lu, ls = "mm", 1e3
+    else:
+        lu, ls = "m", 1.0
+    su, ss = ("psi", cv(1.0, "stress")) if us else ("MPa", 1e-6)
+    con.print(f"[bold]Spanwise table — {blade.name}[/bold]: {_fmt(table.rpm)} rpm, blade angle "
+              f"{_fmt(table.blade_angle_deg, 5)} deg ({op.name or 'first operating point'})")
+    t = Table(show_header=True)
+    cols = [("r", lu), ("area", f"{lu}^2"), ("chord", lu), ("β local", "deg"), ("mass outboard", lab("mass")),
+            ("tension F·e", lab("force")), ("stress P/A", su)]
+    if table.allowable_Pa is not None:
+        cols.append(("MS (centrifugal)", "—"))
+    cols += [("CTM outboard", lab("moment")), ("CTM strip", lab("moment"))]
+    for name, unit in cols:
+        t.add_column(f"{name}\n{unit}", justify="right")
+
+    def f(x, scale=1.0, digits=5):
+        return _fmt(None if x is None else x * scale, digits)
+
+    for r in rows:
+        cells = [f(r["radius_m"], ls), f(r["area_m2"], ls**2), f(r["chord_m"], ls), f(r["local_blade_angle_deg"], 1, 4),
+                 f(r["mass_outboard_kg"], cv(1.0, "mass")), f(r["cf_outboard_N"], cv(1.0, "force")),
+                 f(r["stress_Pa"], ss, 4)]
+        if table.allowable_Pa is not None:
+            cells.append(f(r["margin_of_safety"], 1, 3))
+        cells += [f(r["ctm_outboard_Nm"], cv(1.0, "moment")), f(r["ctm_strip_outboard_Nm"], cv(1.0, "moment"))]
+        t.add_row(*cells)
+    con.print(t)
+    if table.allowable_Pa is not None:
+        con.print(f"allowable {_fmt(table.allowable_Pa * ss, 5)} {su}; MS = allowable/(P/A) − 1")
+    if len(table):
+        mc = cv(1.0, "moment")
+        con.print(f"CTM outboard of r = {_fmt(table.radius_m[0] * ls, 5)} {lu}: solid {_fmt(table.ctm_outboard_Nm[0] * mc, 5)}, "
+                  f"strip {_fmt(table.ctm_strip_outboard_Nm[0] * mc, 5)}, strip + section-centroid offset "
+                  f"{_fmt((table.ctm_strip_outboard_Nm[0] + table.ctm_offset_outboard_Nm[0]) * mc, 5)} {lab('moment')}")
+    if table.density_note != "single density":
+        con.print(f"[yellow]note:[/yellow] {table.density_note}")
+    con.print(f"[dim]{SPAN_NOTE}[/dim]")
+    con.print(f"[dim]{CAUTION}[/dim]")
+
+
 # --- parser ---------------------------------------------------------------------------------
 
 
@@ -345,6 +428,15 @@ def build_parser() -> argparse.ArgumentParser:
     _add_blade_flags(lo)
     _add_load_flags(lo)
     lo.set_defaults(func=cmd_loads)
+
+    sp = sub.add_parser("span", help="spanwise cuts: section properties, centrifugal tension, stress and CTM")
+    _add_blade_flags(sp)
+    _add_load_flags(sp)
+    sp.add_argument("--stations", metavar="N|R1,R2,...", help="station count, or radii along the pitch axis (model unit)")
+    sp.add_argument("--allowable", metavar="QUANTITY", help='material allowable stress, e.g. "240 MPa" (centrifugal margin of safety)')
+    sp.add_argument("--csv", metavar="FILE", help="write the spanwise table as CSV")
+    sp.add_argument("--plot", metavar="FILE.png", help="plot stress, tension, CTM and area against radius")
+    sp.set_defaults(func=cmd_span)
 
     mt = sub.add_parser("materials", help="list the built-in materials")
     mt.set_defaults(func=cmd_materials)
