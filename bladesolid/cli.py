@@ -409,6 +409,197 @@ def _print_span(con, blade, table, rows, op, us):
     con.print(f"[dim]{CAUTION}[/dim]")
 
 
+def cmd_compare(args) -> int:
+    """A repaired / re-profiled blade against its reference: registration, deviation, volumes,
+    deltas and the verdict against the user's limits (exit 1 when outside them)."""
+    from . import api, compare, report
+    from .io import read_mesh
+    from .job import hub_frame_of
+
+    for out in (args.json, args.deviation_png):
+        if out:
+            report.check_new_output(out, args.force)
+    job = _job(args)
+    if job.reference is None:
+        raise InputError("--reference", "compare needs the reference (nominal) blade: --reference MESH")
+    if not job.operating_points:
+        raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
+    limits = compare.read_limits(job.limits) if job.limits else None
+    transform = compare.read_transform(args.transform) if args.transform else None
+    err = _console(stderr=True)
+    lumped = tuple(api.LumpedMass(n, m, np.asarray(p, float)) for n, m, p in job.lumped)
+    reference = api.load_blade(job.reference, args.reference_units or job.units, list(job.densities), lumped=lumped,
+                               frame=hub_frame_of(job), reference_radius_m=job.reference_radius_m,
+                               reference_fraction=job.reference_fraction, elements=False, progress=_progress(err))
+    _warn(err, reference)
+    repaired = read_mesh(job.mesh, job.units)
+    for w in repaired.warnings:
+        err.print(f"[yellow]warning:[/yellow] {job.mesh}: {w}")
+    op = job.operating_points[0]
+    if err.is_terminal:
+        err.print("[dim]… registering and comparing[/dim]")
+    result = compare.compare_blade(reference, [(b.vertices, b.faces) for b in repaired.bodies], op.rpm,
+                                   blade_angle_deg=op.blade_angle_deg, pitch_change_deg=op.pitch_change_deg,
+                                   transform=transform, limits=limits, repaired_name=job.name,
+                                   repaired_source=job.mesh)
+    for w in result.warnings:
+        err.print(f"[yellow]warning:[/yellow] {w}")
+    picture = None
+    if args.deviation_png:
+        try:
+            from .views import render_deviation
+        except ImportError:
+            picture = "skipped: bladesolid.views.render_deviation is not available in this installation"
+            err.print(f"[yellow]note:[/yellow] deviation picture {picture}")
+        else:
+            d = result.deviation
+            render_deviation(d.vertices, d.faces, d.values, args.deviation_png, frame=reference.frame,
+                             title=f"Deviation — {result.repaired_name}",
+                             force=args.force)
+            picture = args.deviation_png
+    data = {
+        "schema": report.SCHEMA,
+        "tool": {"name": "bladesolid", "version": __version__},
+        "caution": CAUTION,
+        "input": {"repaired_mesh": job.mesh, "reference_mesh": job.reference, "units": job.units,
+                  "reference_units": args.reference_units or job.units, "limits": job.limits,
+                  "transform": args.transform, "operating_point": op.name},
+        "warnings": list(reference.warnings) + list(repaired.warnings) + list(result.warnings),
+        "comparison": compare.comparison_section(result),
+    }
+    data["comparison"]["deviation_png"] = picture
+    if args.json:
+        report.atomic_write_text(args.json, report.dumps(data), args.force)
+    _print_compare(_console(), result, args.us)
+    return 1 if result.verdict == "outside limits" else 0
+
+
+def _print_compare(con, c, us):
+    from rich.table import Table
+
+    from .compare import LIMITS_NOTE, limit_value_text, rotation_angle_deg
+
+    if us:
+        from .units import CUSTOMARY
+
+        u = {key: (CUSTOMARY[kind][1], CUSTOMARY[kind][2]) for key, kind in (
+            ("mass", "mass"), ("length", "length"), ("sm", "static_moment"), ("force", "force"), ("moment", "moment"),
+            ("volume", "volume"))}
+    else:
+        u = {"mass": ("g", 1e3), "length": ("mm", 1e3), "sm": ("kg·mm", 1e3), "force": ("N", 1.0),
+             "moment": ("N·m", 1.0), "volume": ("mm³", 1e9)}
+
+    def q(x, kind, digits=5):
+        return "—" if x is None else f"{_fmt(x * u[kind][1], digits)} {u[kind][0]}"
+
+    r = c.registration
+    con.print(f"[bold]Comparison — {c.repaired_name} against the reference {c.reference_name}[/bold]")
+    how = "transform given" if r.method == "given" else f"{r.method} ({r.start}, {r.iterations} iterations, seed {r.seed})"
+    con.print(f"registration: {how}; residuals of the best {r.kept_fraction:.0%} of {r.points} samples: RMS "
+              f"{q(r.rms_m, 'length', 3)}, max {q(r.max_m, 'length', 3)}; all samples: RMS {q(r.rms_all_m, 'length', 3)}, "
+              f"max {q(r.max_all_m, 'length', 3)}")
+    T = c.transform_model
+    con.print(f"transform repaired → reference frame: rotation {_fmt(rotation_angle_deg(T[:3, :3]), 6)} deg, translation "
+              f"[{', '.join(_fmt(x * u['length'][1], 6) for x in T[:3, 3])}] {u['length'][0]}")
+    d = c.deviation
+    con.print(f"surface deviation per vertex (− inside the reference = material missing): min {q(d.min_m, 'length', 4)}, "
+              f"max {q(d.max_m, 'length', 4)}, RMS {q(d.rms_m, 'length', 4)}")
+    con.print(f"removed volume {q(c.removed_volume_m3, 'volume', 5)}, added volume {q(c.added_volume_m3, 'volume', 5)}")
+    con.print(f"operating point: {_fmt(c.rpm)} rpm, both blades set to {_fmt(c.blade_angle_deg, 5)} deg at "
+              f"r = {q(c.reference_radius_m, 'length', 5)}")
+    t = Table(show_header=True)
+    for col, just in (("figure", "left"), ("reference", "right"), ("repaired", "right"), ("change", "right")):
+        t.add_column(col, justify=just)
+    a, b, dl = c.reference, c.repaired, c.delta
+
+    def row(label, kind, x, y, dx, digits=6):
+        t.add_row(f"{label} ({u[kind][0]})", _fmt(None if x is None else x * u[kind][1], digits),
+                  _fmt(None if y is None else y * u[kind][1], digits),
+                  "—" if dx is None else f"{dx * u[kind][1]:+.{4}g}")
+
+    row("mass", "mass", a.mass_kg, b.mass_kg, dl.mass_kg)
+    for i, ax in enumerate("xyz"):
+        row(f"CG {ax}, hub frame", "length", a.cg_m[i], b.cg_m[i], dl.cg_m[i])
+    t.add_row(f"CG shift |Δc| ({u['length'][0]})", "", "", f"{dl.cg_shift_m * u['length'][1]:.4g}")
+    row("static moment m·|c⊥|", "sm", a.static_moment_kgm, b.static_moment_kgm, dl.static_moment_kgm)
+    t.add_row("blade angle at reference station (deg)", _fmt(a.modelled_deg, 6), _fmt(b.modelled_deg, 6),
+              "—" if dl.blade_angle_deg is None else f"{dl.blade_angle_deg:+.4g}")
+    row("radial pull F·e", "force", a.loads.radial_pull_N, b.loads.radial_pull_N, dl.radial_pull_N)
+    row("CTM (+ toward coarse)", "moment", a.loads.ctm_Nm, b.loads.ctm_Nm, dl.ctm_Nm)
+    con.print(t)
+    if c.limits is None:
+        con.print("verdict: [bold]no limits given[/bold] (give --limits FILE with the allowed changes from the approved "
+                  "repair data)")
+    else:
+        lt = Table(title=f"limits from {c.limits.path}" + (f" — {c.limits.source}" if c.limits.source else ""),
+                   title_justify="left", show_header=True)
+        for col in ("limit", "as written", "value", "result"):
+            lt.add_column(col)
+        for x in c.checks:
+            lt.add_row(x.limit.key, x.limit.text, limit_value_text(x), "within" if x.within else "[red]exceeded[/red]")
+        con.print(lt)
+        colour = "green" if c.verdict == "within limits" else "red"
+        con.print(f"verdict: [bold {colour}]{c.verdict}[/bold {colour}]")
+        for reason in c.reasons:
+            con.print(f"  • {reason}")
+    con.print(f"[dim]{LIMITS_NOTE}[/dim]")
+    con.print(f"[dim]{CAUTION}[/dim]")
+
+
+def cmd_match(args) -> int:
+    """Assign the blades of a set to hub positions for the smallest static imbalance."""
+    from . import compare, report
+
+    if args.json:
+        report.check_new_output(args.json, args.force)
+    if args.rpm is not None and not (math.isfinite(args.rpm) and args.rpm >= 0):
+        raise InputError("--rpm", f"must be a non-negative number, got {args.rpm}")
+    blades = [compare.read_set_report(p) for p in args.reports]
+    result, rpm, warnings = compare.match_set(blades, rpm=args.rpm)
+    section = compare.match_section(result, blades, rpm, warnings)
+    err = _console(stderr=True)
+    for w in warnings:
+        err.print(f"[yellow]warning:[/yellow] {w}")
+    if args.json:
+        data = {"schema": report.SCHEMA, "tool": {"name": "bladesolid", "version": __version__}, "caution": CAUTION,
+                "input": {"reports": list(args.reports)}, "warnings": list(warnings), "match": section}
+        report.atomic_write_text(args.json, report.dumps(data), args.force)
+    _print_match(_console(), section, args.us)
+    return 0
+
+
+def _print_match(con, s, us):
+    from rich.table import Table
+
+    from .units import CUSTOMARY
+
+    sm_u, sm_k = CUSTOMARY["static_moment"][1:] if us else ("kg·mm", 1e3)
+    f_u, f_k = CUSTOMARY["force"][1:] if us else ("N", 1.0)
+    m_u, m_k = CUSTOMARY["moment"][1:] if us else ("N·m", 1.0)
+    con.print(f"[bold]Blade set matching — {s['positions']} blades, {s['positions']} positions[/bold] ({s['method']})")
+    bt = Table(show_header=True)
+    for col in ("blade", "name", f"static moment ({sm_u})", f"CTM ({m_u})", f"radial pull ({f_u})", "report"):
+        bt.add_column(col)
+    for b in s["blades"]:
+        bt.add_row(str(b["blade"]), b["name"], _fmt(b["static_moment_kgm"] * sm_k), _fmt(b["ctm_Nm"] * m_k),
+                   _fmt(b["radial_pull_N"] * f_k), b["report"])
+    con.print(bt)
+    for label in ("best", "worst"):
+        a = s[label]
+        at = Table(title=f"{label} assignment", title_justify="left", show_header=True)
+        for col in ("position", "clocking (deg)", "blade", "name"):
+            at.add_column(col)
+        for p in a["positions"]:
+            at.add_row(str(p["position"]), _fmt(p["clocking_deg"], 5), str(p["blade"]), p["name"])
+        con.print(at)
+        con.print(f"  residual static imbalance {_fmt(a['imbalance_kgm'] * sm_k, 5)} {sm_u} = "
+                  f"{_fmt(a['imbalance_force_N'] * f_k, 5)} {f_u} at {_fmt(s['rpm'])} rpm; CTM resultant "
+                  f"{_fmt(a['ctm_resultant_Nm'] * m_k, 4)} {m_u}")
+    con.print(f"CTM spread (max − min) {_fmt(s['ctm_spread_Nm'] * m_k, 5)} {m_u}; static moment spread "
+              f"{_fmt(s['static_moment_spread_kgm'] * sm_k, 5)} {sm_u}")
+    con.print(f"[dim]{CAUTION}[/dim]")
+
+
 # --- parser ---------------------------------------------------------------------------------
 
 
@@ -437,6 +628,26 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--csv", metavar="FILE", help="write the spanwise table as CSV")
     sp.add_argument("--plot", metavar="FILE.png", help="plot stress, tension, CTM and area against radius")
     sp.set_defaults(func=cmd_span)
+
+    cp = sub.add_parser("compare", help="a repaired blade against its reference: registration, deviation, deltas, limits")
+    _add_blade_flags(cp)
+    _add_load_flags(cp)
+    cp.add_argument("--reference", metavar="MESH", help="the reference (nominal) blade mesh; the hub-frame flags refer to it")
+    cp.add_argument("--reference-units", metavar="U", help="length unit of the reference mesh (default: --units)")
+    cp.add_argument("--limits", metavar="FILE", help="your allowed changes (TOML), from the approved repair data")
+    cp.add_argument("--transform", metavar="FILE|identity",
+                    help="rigid transform repaired -> reference frame (4x4 in JSON/TOML/text, translation in m unless "
+                         "the file states units), or 'identity'; default: register automatically")
+    cp.add_argument("--deviation-png", metavar="FILE.png", help="render the signed surface deviation")
+    cp.set_defaults(func=cmd_compare)
+
+    ma = sub.add_parser("match", help="assign the blades of a set to hub positions for the smallest static imbalance")
+    ma.add_argument("reports", nargs="+", metavar="REPORT.json", help="bladesolid JSON reports (loads or check), one per blade")
+    ma.add_argument("--rpm", type=float, metavar="N", help="speed for the imbalance force (default: the reports' rpm)")
+    ma.add_argument("--json", metavar="FILE", help="write the JSON report here")
+    ma.add_argument("--force", action="store_true", help="overwrite existing output files")
+    ma.add_argument("--us", action="store_true", help="print US customary units (the JSON stays SI)")
+    ma.set_defaults(func=cmd_match)
 
     mt = sub.add_parser("materials", help="list the built-in materials")
     mt.set_defaults(func=cmd_materials)
