@@ -412,9 +412,7 @@ def _print_span(con, blade, table, rows, op, us):
 def cmd_compare(args) -> int:
     """A repaired / re-profiled blade against its reference: registration, deviation, volumes,
     deltas and the verdict against the user's limits (exit 1 when outside them)."""
-    from . import api, compare, report
-    from .io import read_mesh
-    from .job import hub_frame_of
+    from . import compare, report
 
     for out in (args.json, args.deviation_png):
         if out:
@@ -424,24 +422,14 @@ def cmd_compare(args) -> int:
         raise InputError("--reference", "compare needs the reference (nominal) blade: --reference MESH")
     if not job.operating_points:
         raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
-    limits = compare.read_limits(job.limits) if job.limits else None
-    transform = compare.read_transform(args.transform) if args.transform else None
     err = _console(stderr=True)
-    lumped = tuple(api.LumpedMass(n, m, np.asarray(p, float)) for n, m, p in job.lumped)
-    reference = api.load_blade(job.reference, args.reference_units or job.units, list(job.densities), lumped=lumped,
-                               frame=hub_frame_of(job), reference_radius_m=job.reference_radius_m,
-                               reference_fraction=job.reference_fraction, elements=False, progress=_progress(err))
+    from .review import compare_job
+
+    result, reference, repaired = compare_job(job, transform=args.transform, reference_units=args.reference_units,
+                                              progress=_progress(err))
     _warn(err, reference)
-    repaired = read_mesh(job.mesh, job.units)
     for w in repaired.warnings:
         err.print(f"[yellow]warning:[/yellow] {job.mesh}: {w}")
-    op = job.operating_points[0]
-    if err.is_terminal:
-        err.print("[dim]… registering and comparing[/dim]")
-    result = compare.compare_blade(reference, [(b.vertices, b.faces) for b in repaired.bodies], op.rpm,
-                                   blade_angle_deg=op.blade_angle_deg, pitch_change_deg=op.pitch_change_deg,
-                                   transform=transform, limits=limits, repaired_name=job.name,
-                                   repaired_source=job.mesh)
     for w in result.warnings:
         err.print(f"[yellow]warning:[/yellow] {w}")
     picture = None
@@ -463,7 +451,7 @@ def cmd_compare(args) -> int:
         "caution": CAUTION,
         "input": {"repaired_mesh": job.mesh, "reference_mesh": job.reference, "units": job.units,
                   "reference_units": args.reference_units or job.units, "limits": job.limits,
-                  "transform": args.transform, "operating_point": op.name},
+                  "transform": args.transform, "operating_point": job.operating_points[0].name},
         "warnings": list(reference.warnings) + list(repaired.warnings) + list(result.warnings),
         "comparison": compare.comparison_section(result),
     }
@@ -528,8 +516,8 @@ def _print_compare(con, c, us):
     row("CTM (+ toward coarse)", "moment", a.loads.ctm_Nm, b.loads.ctm_Nm, dl.ctm_Nm)
     con.print(t)
     if c.limits is None:
-        con.print("verdict: [bold]no limits given[/bold] (give --limits FILE with the allowed changes from the approved "
-                  "repair data)")
+        con.print("verdict: [bold]no limits given — nothing was checked[/bold] (the report says \"within limits\" with "
+                  "limits_checked = false); give --limits FILE with the allowed changes from the approved repair data")
     else:
         lt = Table(title=f"limits from {c.limits.path}" + (f" — {c.limits.source}" if c.limits.source else ""),
                    title_justify="left", show_header=True)

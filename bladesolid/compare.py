@@ -16,7 +16,8 @@ Four stages, each a few small functions over numpy arrays (SI inside, metres):
   operating point, both blades analysed in the reference's hub frame.
 * **Limits** (:func:`read_limits`, :func:`check_limits`) — the user's allowed deltas, from
   their approved repair data, in a small TOML file (see :data:`EXAMPLE_LIMITS`). The tool
-  has no limits of its own: without a limits file the verdict is ``"no limits given"``.
+  has no limits of its own: without a limits file nothing is checked; the verdict then keeps
+  the two values of the report contract ("within limits") and ``limits_checked`` is false.
 * **Set matching** (:func:`match_blades`) — which blade goes to which hub position so that the
   resultant static imbalance is smallest, with the blades' CTMs kept balanced second.
 
@@ -950,10 +951,18 @@ class Comparison:
 
     @property
     def verdict(self) -> str:
-        """``"within limits"`` / ``"outside limits"``; ``"no limits given"`` without a file."""
+        """``"within limits"`` / ``"outside limits"`` (CONVENTIONS: exactly these two values).
+
+        Without a limits file nothing is checked: "within limits" with ``limits_checked`` false.
+        """
         if self.limits is None:
-            return "no limits given"
+            return "within limits"
         return "within limits" if all(c.within for c in self.checks) else "outside limits"
+
+    @property
+    def limits_checked(self) -> bool:
+        """True when a limits file was given and its limits were checked."""
+        return self.limits is not None
 
     @property
     def reasons(self) -> list[str]:
@@ -997,7 +1006,7 @@ def compare_blade(reference, repaired_surfaces, rpm: float, *, blade_angle_deg: 
       ``blade_angle_deg``, or the reference's modelled angle plus ``pitch_change_deg``
       (default: the reference's modelled angle)
     transform : (4, 4) repaired → reference *model* frame (m), or None to register
-    limits : the user's limits, or None (verdict ``"no limits given"``)
+    limits : the user's limits, or None (nothing checked; ``limits_checked`` false)
 
     Deltas are repaired minus reference, in the reference's hub frame.
     """
@@ -1151,6 +1160,7 @@ def comparison_section(c: Comparison) -> dict:
         "reference_blade": _figures_section(c.reference),
         "repaired_blade": _figures_section(c.repaired),
         "verdict": c.verdict,
+        "limits_checked": c.limits_checked,
         "reasons": c.reasons,
         "limits_note": LIMITS_NOTE,
         "limits": None if c.limits is None else {

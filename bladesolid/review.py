@@ -83,6 +83,34 @@ def rpm_sweep_rows(blade, ops, rpm_range) -> list[dict]:
     ]
 
 
+def compare_job(job, transform=None, reference_units=None, progress=None):
+    """Compare the job's blade (``mesh``) with its ``reference`` at the first operating point.
+
+    transform : None (register automatically), "identity", or a transform file path.
+    Returns ``(Comparison, reference Blade, repaired LoadedMesh)``.
+    """
+    from . import api, compare
+    from .io import read_mesh
+    from .job import hub_frame_of
+
+    if job.reference is None:
+        raise InputError(job.source, "no reference blade: give --reference MESH (or the job key 'reference')")
+    if not job.operating_points:
+        raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
+    limits = compare.read_limits(job.limits) if job.limits else None
+    T = compare.read_transform(transform) if transform else None
+    lumped = tuple(api.LumpedMass(n, m, np.asarray(p, float)) for n, m, p in job.lumped)
+    reference = api.load_blade(job.reference, reference_units or job.units, list(job.densities), lumped=lumped,
+                               frame=hub_frame_of(job), reference_radius_m=job.reference_radius_m,
+                               reference_fraction=job.reference_fraction, elements=False, progress=progress)
+    repaired = read_mesh(job.mesh, job.units)
+    op = job.operating_points[0]
+    result = compare.compare_blade(reference, [(b.vertices, b.faces) for b in repaired.bodies], op.rpm,
+                                   blade_angle_deg=op.blade_angle_deg, pitch_change_deg=op.pitch_change_deg,
+                                   transform=T, limits=limits, repaired_name=job.name, repaired_source=job.mesh)
+    return result, reference, repaired
+
+
 def run_review(job, progress=None, *, with_views: bool = True) -> Review:
     """Run every stage of the review for a validated job (nothing is written)."""
     from . import api
@@ -125,7 +153,7 @@ def run_review(job, progress=None, *, with_views: bool = True) -> Review:
         clock.start("compare")
         from . import compare as compare_mod
 
-        rv.comparison = compare_mod.compare_job(job, ops[0])
+        rv.comparison, _, _ = compare_job(job)
         data["comparison"] = compare_mod.comparison_section(rv.comparison)
     if job.set_reports:
         clock.start("compare")

@@ -170,7 +170,8 @@ def test_comparison_section_has_the_contract_keys(scanned):
     assert {"removed_volume_m3", "added_volume_m3", "delta", "verdict", "reasons"} <= set(s)
     assert set(s["delta"]) >= {"mass_kg", "cg_m", "static_moment_kgm", "radial_pull_N", "ctm_Nm"}
     assert len(s["delta"]["cg_m"]) == 3
-    assert s["verdict"] == "no limits given" and s["reasons"] == []
+    # no limits file: nothing checked, the verdict keeps the contract's two values
+    assert s["verdict"] == "within limits" and s["reasons"] == [] and s["limits_checked"] is False
     assert "user's own" in s["limits_note"]
 
 
