@@ -310,6 +310,181 @@ def _print_loads(con, blade, data, ops, us):
     con.print(f"[dim]{CAUTION}[/dim]")
 
 
+def _stage_progress(console):
+    """A rich progress display of the review stages on stderr (a plain line per stage when
+    stderr is not a terminal, so logs show where the time went)."""
+    import time
+
+    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+    from .review import STAGES
+
+    labels = {"load": "reading and checking the mesh", "mesh": "filling the solid with tetrahedral mass elements",
+              "integrate": "integrating element moments", "loads": "centrifugal loads and sweeps",
+              "spanwise": "spanwise station cuts", "fields": "per-element fields and hot spots",
+              "compare": "comparing with the reference / matching the set", "views": "plots, renders and element file",
+              "report": "JSON, CSV and HTML report"}
+    if not console.is_terminal:
+        t0 = time.perf_counter()
+
+        def plain(stage, i, n):
+            console.print(f"[{time.perf_counter() - t0:6.1f} s] {labels.get(stage, stage)}")
+        return plain, None
+    prog = Progress(TextColumn("{task.description}"), BarColumn(), TextColumn("{task.completed}/{task.total}"),
+                    TimeElapsedColumn(), console=console, transient=True)
+    task = prog.add_task("review", total=len(STAGES))
+
+    def show(stage, i, n):
+        prog.update(task, completed=i, description=labels.get(stage, stage))
+    return show, prog
+
+
+def cmd_check(args) -> int:
+    """The whole review: JSON, CSV, plots, renders, VTU and HTML in one folder."""
+    from . import review
+    from .job import load_job
+    from .report import staged_folder  # noqa: F401
+
+    if not str(args.job).lower().endswith(".toml"):
+        raise InputError(args.job, "check takes a job file (.toml); see `bladesolid demo` for an example")
+    out = os.path.abspath(args.out)
+    if os.path.isdir(out) and os.listdir(out) and not args.force:
+        from .errors import OutputExistsError
+
+        raise OutputExistsError(args.out)
+    job = load_job(args.job, _flags(args))
+    err = _console(stderr=True)
+    show, prog = _stage_progress(err)
+    if prog is not None:
+        prog.start()
+    try:
+        rv = review.run_review(job, show)
+        for w in rv.blade.warnings:
+            err.print(f"[yellow]warning:[/yellow] {w}")
+        names = review.write_review(rv, args.out, args.force, show)
+    finally:
+        if prog is not None:
+            prog.stop()
+    _print_loads(_console(), rv.blade, rv.report, rv.ops, args.us)
+    con = _console()
+    con.print(f"review written to [bold]{args.out}[/bold]: " + ", ".join(names))
+    con.print(f"open {os.path.join(args.out, 'report.html')} in a browser for the whole review")
+    cmp_ = rv.report.get("comparison")
+    if cmp_ is not None and cmp_.get("verdict") == "outside limits":
+        con.print("[bold red]comparison: outside limits[/bold red] — " + "; ".join(cmp_.get("reasons", [])))
+        return 1
+    return 0
+
+
+DEMO_JOB = """\
+# bladesolid demo job: the invented Brightwater Propellers BW-3 blade (3 blades, 2.0 m
+# diameter, aluminium). Every number here is invented for the demo.
+name = "BW-3 demo blade, serial BW3-0001 (invented)"
+mesh = "demo_blade.stl"
+units = "mm"
+material = "al-2025-t6"
+blades = 3
+
+hub_centre = [0.0, 0.0, 0.0]
+thrust_axis = [0.0, 0.0, 1.0]
+pitch_axis = [0.0, 1.0, 0.0]
+rotation = "right"
+reference_fraction = 0.75
+
+sweep = "-10:90:1"
+rpm_sweep = "0:3000:50"
+stations = 16
+allowable = "200 MPa"          # invented figure for the demo, not a material allowable
+proof_factor = 2.0
+
+[[operating_point]]
+name = "take-off"
+rpm = 2500
+blade_angle = 22.0
+
+[[operating_point]]
+name = "maximum continuous"
+rpm = 2400
+blade_angle = 28.0
+
+[[operating_point]]
+name = "overspeed"
+rpm = 2875
+blade_angle = 22.0
+
+[[lumped_mass]]
+name = "balance weight"
+mass = "0.045 kg"
+position = [-10.0, 160.0, 30.0]
+
+[counterweight]                # size a counterweight: zero net CTM at take-off
+radius = 160.0
+arm = 90.0
+clocking = 90.0
+target_ctm = "0 N*m"
+"""
+
+DEMO_REPAIR_JOB = """\
+# bladesolid demo repair job: the BW-3 blade after a leading-edge blend at the invented
+# Larkspur Blade Repair shop, scanned in the scanner's own frame, checked against nominal.
+name = "BW-3 serial BW3-0001 after LE blend (invented)"
+mesh = "demo_blade_le_blend_scanned.stl"
+reference = "demo_blade.stl"
+limits = "repair_limits.toml"
+units = "mm"
+material = "al-2025-t6"
+blades = 3
+stations = 16
+
+[[operating_point]]
+name = "take-off"
+rpm = 2500
+blade_angle = 22.0
+"""
+
+DEMO_LIMITS = """\
+# Allowed changes, repaired minus nominal. These are the USER'S limits, to be taken from the
+# approved repair data; the figures below are invented for the demo.
+source = "Larkspur Blade Repair, demo repair scheme (invented)"
+mass = "-30 g:+2 g"
+max_abs_static_moment = "15 kg*mm"
+max_abs_ctm = "3 N*m"
+blade_angle = "-0.25:0.25"
+cg_shift = "1.5 mm"
+max_deviation = "5 mm"
+removed_volume = "12000 mm^3"
+"""
+
+
+def cmd_demo(args) -> int:
+    """Write the demo blade, its jobs and limits into DIR and run `check` on the main job."""
+    from .demo import write_demo_meshes
+    from .report import atomic_write_text
+
+    folder = os.path.abspath(args.dir)
+    if os.path.isdir(folder) and os.listdir(folder) and not args.force:
+        from .errors import OutputExistsError
+
+        raise OutputExistsError(args.dir)
+    if os.path.exists(folder) and not os.path.isdir(folder):
+        raise InputError(args.dir, "exists and is not a folder")
+    parent = os.path.dirname(folder)
+    if not os.path.isdir(parent):
+        raise InputError(args.dir, f"the folder {parent} does not exist")
+    os.makedirs(folder, exist_ok=True)
+    write_demo_meshes(folder)
+    job_path = os.path.join(args.dir, "demo_job.toml")
+    atomic_write_text(job_path, DEMO_JOB, force=True)
+    atomic_write_text(os.path.join(args.dir, "repair_job.toml"), DEMO_REPAIR_JOB, force=True)
+    atomic_write_text(os.path.join(args.dir, "repair_limits.toml"), DEMO_LIMITS, force=True)
+    ns = argparse.Namespace(job=job_path, out=os.path.join(args.dir, "review"), force=True, us=args.us)
+    code = cmd_check(ns)
+    con = _console()
+    con.print(f"next: the repair scenario — bladesolid check {os.path.join(args.dir, 'repair_job.toml')} "
+              f"--out {os.path.join(args.dir, 'repair-review')}")
+    return code
+
+
 def cmd_materials(args) -> int:
     from rich.table import Table
 
@@ -636,6 +811,24 @@ def build_parser() -> argparse.ArgumentParser:
     ma.add_argument("--force", action="store_true", help="overwrite existing output files")
     ma.add_argument("--us", action="store_true", help="print US customary units (the JSON stays SI)")
     ma.set_defaults(func=cmd_match)
+
+    ck = sub.add_parser("check", help="the whole review of a job: JSON, CSV, plots, renders, VTU and HTML in one folder")
+    ck.add_argument("job", metavar="JOB.toml")
+    ck.add_argument("--out", required=True, metavar="DIR", help="output folder (created; refused if not empty without --force)")
+    ck.add_argument("--force", action="store_true", help="replace an existing output folder")
+    ck.add_argument("--us", action="store_true", help="print US customary units (files stay SI)")
+    ck.add_argument("--rpm", metavar="N[,N...]", help="replace the job's operating points by these speeds")
+    g = ck.add_mutually_exclusive_group()
+    g.add_argument("--blade-angle", type=float, metavar="DEG")
+    g.add_argument("--pitch-change", type=float, metavar="DEG")
+    ck.add_argument("--elements", type=int, metavar="N", help="target number of tetrahedral mass elements")
+    ck.set_defaults(func=cmd_check)
+
+    dm = sub.add_parser("demo", help="write the demo blade and job into DIR and run check on it")
+    dm.add_argument("dir", nargs="?", default="bladesolid-demo", metavar="DIR")
+    dm.add_argument("--force", action="store_true", help="write into an existing, non-empty folder")
+    dm.add_argument("--us", action="store_true", help="print US customary units (files stay SI)")
+    dm.set_defaults(func=cmd_demo)
 
     mt = sub.add_parser("materials", help="list the built-in materials")
     mt.set_defaults(func=cmd_materials)

@@ -117,7 +117,7 @@ def run_review(job, progress=None, *, with_views: bool = True) -> Review:
 
     clock = _Clock(progress)
     clock.start("load")
-    stage_cb = {"load": "load", "integrate surface": "integrate", "mesh": "mesh", "integrate elements": "integrate"}
+    stage_cb = {"load": "load", "integrate surface": "load", "mesh": "mesh", "integrate elements": "integrate"}
     blade = api.blade_from_job(job, elements=True, progress=lambda s: clock.start(stage_cb.get(s, "load")))
     if not job.operating_points:
         raise InputError(job.source, "no operating point: add [[operating_point]] with an rpm (or --rpm N)")
