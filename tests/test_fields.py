@@ -169,11 +169,13 @@ def test_flat_plate_at_45deg_closed_form_per_element(plate):
 
 
 def test_flat_plate_at_0_and_90_deg_has_no_total_ctm(plate):
-    # CONVENTIONS §4: zero at 0° and 90°; per element the cross term s u remains, in balance.
+    # CONVENTIONS §4: zero at 0° and 90°. Per element the cross term s u remains; it cancels
+    # over the plate, which is symmetric about its mid-thickness plane (the elements fill the
+    # surface exactly, so the cancellation is to round-off).
     for beta in (0.0, 90.0):
         f = element_fields(plate, RPM, beta)
         scale = np.abs(f.ctm_Nm).sum()
-        assert abs(f.totals.ctm_Nm) < 1e-3 * scale
+        assert scale > 0 and abs(f.totals.ctm_Nm) < 1e-12 * scale
 
 
 # --- share bands -----------------------------------------------------------------------------------
