@@ -38,14 +38,26 @@ def check_new_output(path, force: bool = False) -> None:
         raise InputError(p, f"the folder {parent} does not exist")
 
 
+def _umask() -> int:
+    """The process umask (read by setting and restoring it)."""
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
 def atomic_write_bytes(path, data: bytes, force: bool = False) -> str:
-    """Write ``data`` to ``path`` through a temporary file and a rename."""
+    """Write ``data`` to ``path`` through a temporary file and a rename.
+
+    The file gets the permissions of an ordinary new file (0o666 & ~umask), not the
+    owner-only 0o600 of the temporary file.
+    """
     p = os.fspath(path)
     check_new_output(p, force)
     parent = os.path.dirname(os.path.abspath(p))
     fd, tmp = tempfile.mkstemp(prefix=".bladesolid-", suffix=".part", dir=parent)
     try:
         with os.fdopen(fd, "wb") as fh:
+            os.fchmod(fh.fileno(), 0o666 & ~_umask())
             fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())
@@ -79,6 +91,7 @@ def staged_folder(path, force: bool = False):
         raise InputError(p, f"the folder {parent} does not exist")
     tmp = tempfile.mkdtemp(prefix=f".{os.path.basename(p)}-", suffix=".part", dir=parent)
     try:
+        os.chmod(tmp, 0o777 & ~_umask())  # an ordinary folder, not mkdtemp's owner-only 0o700
         yield tmp
         if os.path.isdir(p):
             old = tempfile.mkdtemp(prefix=f".{os.path.basename(p)}-", suffix=".old", dir=parent)
@@ -370,10 +383,27 @@ def review_html(data: dict, images: dict | None = None, files: list | None = Non
 
     hs = d.get("hot_spots")
     if hs:
-        rows = [[_e(r.get("region")), _num(r.get("ctm_share_pct"), 4), _num(r.get("radial_pull_share_pct"), 4),
-                 _num(r.get("mass_share_pct"), 4)] for r in hs.get("regions", [])]
-        parts.append("<section><h2>Hot spots</h2>" + _table(rows, ["region", "CTM share %", "radial pull share %", "mass share %"])
-                     + f"<p>{_e(hs.get('note', ''))}</p></section>")
+        rows = [[_e(r.get("region")), _num(r.get("ctm_Nm"), 5), _num(r.get("ctm_pct"), 4), _num(r.get("radial_pull_N"), 5),
+                 _num(r.get("radial_pull_pct"), 4), _num(r.get("mass_pct"), 4), _num(r.get("volume_pct"), 4)]
+                for r in hs.get("regions", [])]
+        sec = "<section><h2>Where the loads come from</h2>" + _table(
+            rows, ["region", "CTM N·m", "CTM share %", "radial pull N", "radial pull share %", "mass share %", "volume share %"])
+        defs = hs.get("definitions")
+        if isinstance(defs, dict):
+            sec += "<ul>" + "".join(f"<li><b>{_e(k)}</b>: {_e(v)}</li>" for k, v in defs.items()) + "</ul>"
+        elif isinstance(defs, (list, tuple)):
+            sec += "<ul>" + "".join(f"<li>{_e(v)}</li>" for v in defs) + "</ul>"
+        ef = d.get("element_fields", {})
+        bands = [b for b in ef.get("share_bands", []) if b.get("quantity") == "ctm_Nm"]
+        if bands:
+            sec += "<p>Smallest sets of elements carrying a share of the CTM:</p>" + _table(
+                [[_num(b["level_pct"]), _num(b["elements"]), _num(b["element_pct"], 3), _num(b["volume_pct"], 3),
+                  _num(b["carried_pct"], 4)] for b in bands],
+                ["share %", "elements", "% of elements", "% of volume", "carried %"])
+            opp = ef.get("opposing_pct", {}).get("ctm_Nm")
+            if opp is not None:
+                sec += f"<p>Elements pulling against the total CTM add up to {_num(opp, 3)} % of it.</p>"
+        parts.append(sec + "</section>")
 
     cmp_ = d.get("comparison")
     if cmp_:
