@@ -139,6 +139,7 @@ def load_blade(
     max_element_volume_m3: float | None = None,
     target_elements: int | None = None,
     name: str | None = None,
+    model_transform=None,
     progress=None,
 ) -> Blade:
     """Load, validate, mesh and integrate a blade.
@@ -151,6 +152,8 @@ def load_blade(
     frame : hub frame in the model frame (default: identity, right-hand rotation)
     reference_radius_m : reference station for the blade angle (default: fraction × tip radius)
     elements : build the tetrahedral mass elements (False: surface route only, faster)
+    model_transform : optional 4x4 rigid transform (m) applied to the mesh on load, e.g. the
+      registration that puts a scanned blade into its nominal's model frame
     progress : optional callable(stage: str) told when each stage starts
     """
     from .io import read_mesh
@@ -167,6 +170,9 @@ def load_blade(
     specs = [d if isinstance(d, tuple) else ("density", d) for d in (densities or [])]
     mats = resolve_materials(specs, len(bodies))
     R, t = frame.model_to_hub()
+    if model_transform is not None:
+        T = np.asarray(model_transform, dtype=float)
+        R, t = R @ T[:3, :3], R @ T[:3, 3] + t
     surfaces = tuple((b.vertices @ R.T + t, np.asarray(b.faces, dtype=np.int64)) for b in bodies)
     say("integrate surface")
     body_moments = tuple(
@@ -346,8 +352,9 @@ def hub_to_model_moments(blade: Blade, m: Moments) -> Moments:
 # --- from a job ---------------------------------------------------------------------------
 
 
-def blade_from_job(job, *, elements: bool = True, progress=None) -> Blade:
-    """Load the blade a validated :class:`bladesolid.job.Job` describes."""
+def blade_from_job(job, *, elements: bool = True, model_transform=None, progress=None) -> Blade:
+    """Load the blade a validated :class:`bladesolid.job.Job` describes (``model_transform``:
+    an optional 4x4 applied to the mesh first, see :func:`load_blade`)."""
     from .job import check_pitch_point, hub_frame_of
 
     frame = hub_frame_of(job)
@@ -364,6 +371,7 @@ def blade_from_job(job, *, elements: bool = True, progress=None) -> Blade:
         max_element_volume_m3=None if job.element_size_m is None else job.element_size_m**3 / (6.0 * math.sqrt(2.0)),
         target_elements=job.elements,
         name=job.name,
+        model_transform=model_transform,
         progress=progress,
     )
     if job.pitch_point_m is not None:

@@ -34,6 +34,7 @@ class Review:
     fields: object | None = None
     hot_spots: object | None = None
     comparison: object | None = None
+    reference: object | None = None
     timings_s: dict = field(default_factory=dict)
 
 
@@ -116,11 +117,20 @@ def run_review(job, progress=None, *, with_views: bool = True) -> Review:
     from . import api
 
     clock = _Clock(progress)
-    clock.start("load")
-    stage_cb = {"load": "load", "integrate surface": "load", "mesh": "mesh", "integrate elements": "integrate"}
-    blade = api.blade_from_job(job, elements=True, progress=lambda s: clock.start(stage_cb.get(s, "load")))
     if not job.operating_points:
         raise InputError(job.source, "no operating point: add [[operating_point]] with an rpm (or --rpm N)")
+    comparison = reference = None
+    transform = None
+    if job.reference:
+        # a repaired or scanned blade: register it to its reference first, then analyse it
+        # in the reference's model (and so hub) frame
+        clock.start("compare")
+        comparison, reference, _ = compare_job(job)
+        transform = comparison.transform_model
+    clock.start("load")
+    stage_cb = {"load": "load", "integrate surface": "load", "mesh": "mesh", "integrate elements": "integrate"}
+    blade = api.blade_from_job(job, elements=True, model_transform=transform,
+                               progress=lambda s: clock.start(stage_cb.get(s, "load")))
     clock.start("loads")
     ops = [api.loads_at(blade, o.rpm, o.blade_angle_deg, o.pitch_change_deg, name=o.name) for o in job.operating_points]
     data = loads_report(blade, job, ops)
@@ -146,15 +156,17 @@ def run_review(job, progress=None, *, with_views: bool = True) -> Review:
 
     rv.fields = fields_mod.element_fields(blade, ops[0].rpm, ops[0].blade_angle_deg)
     rv.hot_spots = fields_mod.hot_spots(blade, rv.fields)
-    data["hot_spots"] = fields_mod.hot_spots_section(rv.hot_spots)
-    data["element_fields"] = fields_mod.fields_summary(rv.fields)
+    summary = fields_mod.summary(rv.fields, rv.hot_spots)
+    data["hot_spots"] = summary.pop("hot_spots")
+    data["element_fields"] = summary
 
-    if job.reference:
-        clock.start("compare")
+    if comparison is not None:
         from . import compare as compare_mod
 
-        rv.comparison, _, _ = compare_job(job)
-        data["comparison"] = compare_mod.comparison_section(rv.comparison)
+        rv.comparison, rv.reference = comparison, reference
+        data["comparison"] = compare_mod.comparison_section(comparison)
+        data["input"]["reference_mesh"] = job.reference
+        data["input"]["registered_to_reference"] = True
     if job.set_reports:
         clock.start("compare")
         from . import compare as compare_mod
@@ -286,28 +298,36 @@ def write_review(rv: Review, folder, force: bool = False, progress=None, with_vi
             files["spanwise.png"] = _png(span_mod.plot_span, rv.span)
             images["Spanwise centrifugal tension, stress, CTM and area"] = files["spanwise.png"]
         if rv.hot_spots is not None:
-            files["hot_spots.png"] = _png(views.plot_hot_spots, rv.hot_spots)
+            files["hot_spots.png"] = _png(views.plot_hot_spots, rv.hot_spots, title=f"Hot spots — {rv.blade.name}")
             images["Hot spots: share of CTM, radial pull and mass by region"] = files["hot_spots.png"]
         if rv.fields is not None:
+            grid = views.element_grid(rv.blade, rv.fields, rv.hot_spots)
             for fname, label in (("ctm_Nm", "CTM contribution"), ("radial_pull_N", "radial pull contribution"),
                                  ("mass_kg", "mass")):
                 for view in ("planform", "tip"):
                     key = f"render_{fname.split('_')[0]}_{view}.png"
-                    files[key] = _png(views.render_field, rv.blade, rv.fields, fname, view=view)
+                    files[key] = _png(views.render_field, rv.blade, rv.fields, fname, view=view, grid=grid,
+                                      hotspots=rv.hot_spots)
                     images[f"{label} per element, view from the {view}"] = files[key]
-            files["render_ctm_share.png"] = _png(views.render_field, rv.blade, rv.fields, "ctm_share_band", view="planform")
+            files["render_ctm_share.png"] = _png(views.render_field, rv.blade, rv.fields, "ctm_share_band",
+                                                 view="planform", grid=grid, hotspots=rv.hot_spots)
             images["smallest element sets carrying 50 / 80 / 95 % of the CTM"] = files["render_ctm_share.png"]
-            stations = [rv.blade.reference_radius_m]
-            files["render_clipped.png"] = _png(views.render_clipped, rv.blade, rv.fields, "ctm_Nm", stations)
-            images["CTM contribution inside the blade, cut at the reference station"] = files["render_clipped.png"]
-            grid = views.element_grid(rv.blade, rv.fields)
+            files["render_regions.png"] = _png(views.render_field, rv.blade, rv.fields, "region", view="iso",
+                                               grid=grid, hotspots=rv.hot_spots)
+            images["hot-spot regions (leading edge, trailing edge, tip, shank, mid-chord)"] = files["render_regions.png"]
+            tip = rv.blade.tip_radius_m
+            stations = sorted({round(f * tip, 6) for f in (0.4, 0.6)} | {round(rv.blade.reference_radius_m, 6)}
+                              | {round(0.9 * tip, 6)})
+            files["render_clipped.png"] = _png(views.render_clipped, rv.blade, rv.fields, "ctm_Nm", stations,
+                                               grid=grid, hotspots=rv.hot_spots)
+            images["CTM contribution inside the blade, cut at stations (reference station included)"] = files["render_clipped.png"]
             files["elements.vtu"] = _vtu_bytes(views, grid)
-        if rv.comparison is not None and getattr(rv.comparison, "deviation", None) is not None:
-            from . import compare as compare_mod
-
-            if hasattr(compare_mod, "deviation_png"):
-                files["deviation.png"] = compare_mod.deviation_png(rv.comparison)
-                images["surface deviation of this blade from the reference"] = files["deviation.png"]
+        if rv.comparison is not None:
+            d = rv.comparison.deviation
+            files["deviation.png"] = _png(views.render_deviation, d.vertices, d.faces, d.values,
+                                          frame=rv.reference.frame, title=f"Deviation — {rv.blade.name}")
+            images["surface deviation of this blade from the reference (after registration)"] = files["deviation.png"]
+            data["comparison"]["deviation_png"] = "deviation.png"
 
     clock.start("report")
     data["timings_s"] = {**rv.timings_s, **{f"write_{k}": v for k, v in clock.timings.items()}}
