@@ -138,9 +138,32 @@ def _progress(console):
     return show
 
 
+def _check_outputs(force: bool, *paths) -> None:
+    """Refuse, before any work, outputs that exist (without --force) or that name the same file twice."""
+    from .report import check_new_output
+
+    given = [p for p in paths if p]
+    seen = {}
+    for p in given:
+        key = os.path.realpath(p)
+        if key in seen:
+            raise InputError(p, f"is given for two outputs ({seen[key]} and this one); give each output its own file")
+        seen[key] = p
+        check_new_output(p, force)
+
+
+def _esc(text) -> str:
+    """User text made safe to print: one line, control characters escaped, rich markup escaped."""
+    from rich.markup import escape
+
+    from .errors import one_line
+
+    return escape(one_line(text, 300))
+
+
 def _warn(console, blade):
     for w in blade.warnings:
-        console.print(f"[yellow]warning:[/yellow] {w}")
+        console.print(f"[yellow]warning:[/yellow] {_esc(w)}")
 
 
 def _fmt(x, digits=6):
@@ -190,7 +213,7 @@ def _print_mass(con, blade, props, us):
     from rich.table import Table
 
     cv, lab = _conv(us)
-    t = Table(title=f"Mass properties — {blade.name}", title_justify="left")
+    t = Table(title=f"Mass properties — {_esc(blade.name)}", title_justify="left")
     for name, just in (("quantity", "left"), ("value  |  x", "right"), ("y", "right"), ("z", "right"), ("unit", "left")):
         t.add_column(name, justify=just)
 
@@ -259,7 +282,7 @@ def _print_loads(con, blade, data, ops, us):
 
     cv, lab = _conv(us)
     a = blade.modelled_angle
-    con.print(f"[bold]Centrifugal loads — {blade.name}[/bold]")
+    con.print(f"[bold]Centrifugal loads — {_esc(blade.name)}[/bold]")
     mp = data["mass_properties"]
     con.print(
         f"mass {_fmt(cv(mp['mass_kg'], 'mass'))} {lab('mass')}, CG radius "
@@ -270,7 +293,7 @@ def _print_loads(con, blade, data, ops, us):
     t.add_column("figure")
     t.add_column("unit")
     for o in ops:
-        t.add_column(o.name, justify="right")
+        t.add_column(_esc(o.name), justify="right")
     rows = [
         ("speed", "rpm", lambda o: _fmt(o.rpm)),
         ("blade angle", "deg", lambda o: _fmt(o.blade_angle_deg, 5)),
@@ -295,7 +318,7 @@ def _print_loads(con, blade, data, ops, us):
     pl = data["proof_load"]
     con.print(
         f"centrifugal proof load: {_fmt(cv(pl['proof_load_N'], 'force'))} {lab('force')} "
-        f"= {pl['factor']:g} × {_fmt(cv(pl['largest_radial_pull_N'], 'force'))} {lab('force')} at {pl['at_operating_point']} "
+        f"= {pl['factor']:g} × {_fmt(cv(pl['largest_radial_pull_N'], 'force'))} {lab('force')} at {_esc(pl['at_operating_point'])} "
         f"[dim]({pl['source']})[/dim]"
     )
     r = data["rotor"]
@@ -360,15 +383,15 @@ def cmd_check(args) -> int:
     try:
         rv = review.run_review(job, show)
         for w in rv.blade.warnings:
-            err.print(f"[yellow]warning:[/yellow] {w}")
+            err.print(f"[yellow]warning:[/yellow] {_esc(w)}")
         names = review.write_review(rv, args.out, args.force, show)
     finally:
         if prog is not None:
             prog.stop()
     _print_loads(_console(), rv.blade, rv.report, rv.ops, args.us)
     con = _console()
-    con.print(f"review written to [bold]{args.out}[/bold]: " + ", ".join(names))
-    con.print(f"open {os.path.join(args.out, 'report.html')} in a browser for the whole review")
+    con.print(f"review written to [bold]{_esc(args.out)}[/bold]: " + ", ".join(names))
+    con.print(f"open {_esc(os.path.join(args.out, 'report.html'))} in a browser for the whole review")
     cmp_ = rv.report.get("comparison")
     if cmp_ is not None and cmp_.get("verdict") == "outside limits":
         con.print("[bold red]comparison: outside limits[/bold red] — " + "; ".join(cmp_.get("reasons", [])))
@@ -506,9 +529,7 @@ def cmd_span(args) -> int:
     from . import api, report
     from .span import SPAN_NOTE, plot_span, span_table, spanwise_rows
 
-    for out in (args.json, args.csv, args.plot):
-        if out:
-            report.check_new_output(out, args.force)
+    _check_outputs(args.force, args.json, args.csv, args.plot)
     job = _job(args)
     if not job.operating_points:
         raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
@@ -548,7 +569,7 @@ def _print_span(con, blade, table, rows, op, us):
     else:
         lu, ls = "m", 1.0
     su, ss = ("psi", cv(1.0, "stress")) if us else ("MPa", 1e-6)
-    con.print(f"[bold]Spanwise table — {blade.name}[/bold]: {_fmt(table.rpm)} rpm, blade angle "
+    con.print(f"[bold]Spanwise table — {_esc(blade.name)}[/bold]: {_fmt(table.rpm)} rpm, blade angle "
               f"{_fmt(table.blade_angle_deg, 5)} deg ({op.name or 'first operating point'})")
     t = Table(show_header=True)
     cols = [("r", lu), ("area", f"{lu}^2"), ("chord", lu), ("β local", "deg"), ("mass outboard", lab("mass")),
@@ -579,7 +600,7 @@ def _print_span(con, blade, table, rows, op, us):
                   f"strip {_fmt(table.ctm_strip_outboard_Nm[0] * mc, 5)}, strip + section-centroid offset "
                   f"{_fmt((table.ctm_strip_outboard_Nm[0] + table.ctm_offset_outboard_Nm[0]) * mc, 5)} {lab('moment')}")
     if table.density_note != "single density":
-        con.print(f"[yellow]note:[/yellow] {table.density_note}")
+        con.print(f"[yellow]note:[/yellow] {_esc(table.density_note)}")
     con.print(f"[dim]{SPAN_NOTE}[/dim]")
     con.print(f"[dim]{CAUTION}[/dim]")
 
@@ -589,9 +610,7 @@ def cmd_compare(args) -> int:
     deltas and the verdict against the user's limits (exit 1 when outside them)."""
     from . import compare, report
 
-    for out in (args.json, args.deviation_png):
-        if out:
-            report.check_new_output(out, args.force)
+    _check_outputs(args.force, args.json, args.deviation_png)
     job = _job(args)
     if job.reference is None:
         raise InputError("--reference", "compare needs the reference (nominal) blade: --reference MESH")
@@ -604,9 +623,9 @@ def cmd_compare(args) -> int:
                                               progress=_progress(err))
     _warn(err, reference)
     for w in repaired.warnings:
-        err.print(f"[yellow]warning:[/yellow] {job.mesh}: {w}")
+        err.print(f"[yellow]warning:[/yellow] {_esc(job.mesh)}: {_esc(w)}")
     for w in result.warnings:
-        err.print(f"[yellow]warning:[/yellow] {w}")
+        err.print(f"[yellow]warning:[/yellow] {_esc(w)}")
     picture = None
     if args.deviation_png:
         try:
@@ -656,7 +675,7 @@ def _print_compare(con, c, us):
         return "—" if x is None else f"{_fmt(x * u[kind][1], digits)} {u[kind][0]}"
 
     r = c.registration
-    con.print(f"[bold]Comparison — {c.repaired_name} against the reference {c.reference_name}[/bold]")
+    con.print(f"[bold]Comparison — {_esc(c.repaired_name)} against the reference {_esc(c.reference_name)}[/bold]")
     how = "transform given" if r.method == "given" else f"{r.method} ({r.start}, {r.iterations} iterations, seed {r.seed})"
     con.print(f"registration: {how}; residuals of the best {r.kept_fraction:.0%} of {r.points} samples: RMS "
               f"{q(r.rms_m, 'length', 3)}, max {q(r.max_m, 'length', 3)}; all samples: RMS {q(r.rms_all_m, 'length', 3)}, "
@@ -694,7 +713,7 @@ def _print_compare(con, c, us):
         con.print("verdict: [bold]no limits given — nothing was checked[/bold] (the report says \"within limits\" with "
                   "limits_checked = false); give --limits FILE with the allowed changes from the approved repair data")
     else:
-        lt = Table(title=f"limits from {c.limits.path}" + (f" — {c.limits.source}" if c.limits.source else ""),
+        lt = Table(title=f"limits from {_esc(c.limits.path)}" + (f" — {_esc(c.limits.source)}" if c.limits.source else ""),
                    title_justify="left", show_header=True)
         for col in ("limit", "as written", "value", "result"):
             lt.add_column(col)
@@ -704,7 +723,7 @@ def _print_compare(con, c, us):
         colour = "green" if c.verdict == "within limits" else "red"
         con.print(f"verdict: [bold {colour}]{c.verdict}[/bold {colour}]")
         for reason in c.reasons:
-            con.print(f"  • {reason}")
+            con.print(f"  • {_esc(reason)}")
     con.print(f"[dim]{LIMITS_NOTE}[/dim]")
     con.print(f"[dim]{CAUTION}[/dim]")
 
@@ -722,7 +741,7 @@ def cmd_match(args) -> int:
     section = compare.match_section(result, blades, rpm, warnings)
     err = _console(stderr=True)
     for w in warnings:
-        err.print(f"[yellow]warning:[/yellow] {w}")
+        err.print(f"[yellow]warning:[/yellow] {_esc(w)}")
     if args.json:
         data = {"schema": report.SCHEMA, "tool": {"name": "bladesolid", "version": __version__}, "caution": CAUTION,
                 "input": {"reports": list(args.reports)}, "warnings": list(warnings), "match": section}
@@ -744,8 +763,8 @@ def _print_match(con, s, us):
     for col in ("blade", "name", f"static moment ({sm_u})", f"CTM ({m_u})", f"radial pull ({f_u})", "report"):
         bt.add_column(col)
     for b in s["blades"]:
-        bt.add_row(str(b["blade"]), b["name"], _fmt(b["static_moment_kgm"] * sm_k), _fmt(b["ctm_Nm"] * m_k),
-                   _fmt(b["radial_pull_N"] * f_k), b["report"])
+        bt.add_row(str(b["blade"]), _esc(b["name"]), _fmt(b["static_moment_kgm"] * sm_k), _fmt(b["ctm_Nm"] * m_k),
+                   _fmt(b["radial_pull_N"] * f_k), _esc(b["report"]))
     con.print(bt)
     for label in ("best", "worst"):
         a = s[label]
@@ -753,7 +772,7 @@ def _print_match(con, s, us):
         for col in ("position", "clocking (deg)", "blade", "name"):
             at.add_column(col)
         for p in a["positions"]:
-            at.add_row(str(p["position"]), _fmt(p["clocking_deg"], 5), str(p["blade"]), p["name"])
+            at.add_row(str(p["position"]), _fmt(p["clocking_deg"], 5), str(p["blade"]), _esc(p["name"]))
         con.print(at)
         con.print(f"  residual static imbalance {_fmt(a['imbalance_kgm'] * sm_k, 5)} {sm_u} = "
                   f"{_fmt(a['imbalance_force_N'] * f_k, 5)} {f_u} at {_fmt(s['rpm'])} rpm; CTM resultant "
@@ -855,6 +874,12 @@ def main(argv=None) -> int:
         return 130
     except MemoryError:
         print("bladesolid: error: out of memory; try a coarser mesh", file=sys.stderr)
+        return 2
+    except OSError as exc:  # disk full, unwritable folder, ... : one line, no traceback
+        from .errors import one_line
+
+        where = exc.filename if exc.filename else "output"
+        print(f"bladesolid: error: {one_line(where, 300)}: {one_line(exc.strerror or exc, 300)}", file=sys.stderr)
         return 2
 
 

@@ -154,7 +154,7 @@ class Moments:
     second : (3, 3) float, kg·m², ∫ r rᵀ dm
 
     >>> p = point_mass(2.0, [0.0, 1.0, 0.0])
-    >>> p.cg.tolist(), p.inertia()[0, 0]
+    >>> p.cg.tolist(), float(p.inertia()[0, 0])
     ([0.0, 1.0, 0.0], 2.0)
     """
 

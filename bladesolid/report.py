@@ -54,7 +54,10 @@ def atomic_write_bytes(path, data: bytes, force: bool = False) -> str:
     p = os.fspath(path)
     check_new_output(p, force)
     parent = os.path.dirname(os.path.abspath(p))
-    fd, tmp = tempfile.mkstemp(prefix=".bladesolid-", suffix=".part", dir=parent)
+    try:
+        fd, tmp = tempfile.mkstemp(prefix=".bladesolid-", suffix=".part", dir=parent)
+    except OSError as exc:
+        raise InputError(p, f"cannot be written ({exc.strerror or exc})") from None
     try:
         with os.fdopen(fd, "wb") as fh:
             os.fchmod(fh.fileno(), 0o666 & ~_umask())
@@ -62,6 +65,10 @@ def atomic_write_bytes(path, data: bytes, force: bool = False) -> str:
             fh.flush()
             os.fsync(fh.fileno())
         os.replace(tmp, p)
+    except OSError as exc:  # disk full, quota, ...: nothing is left behind
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        raise InputError(p, f"could not be written ({exc.strerror or exc}); nothing was left behind") from None
     except BaseException:
         with contextlib.suppress(OSError):
             os.unlink(tmp)

@@ -306,10 +306,6 @@ CONTROL = {chr(c) for c in range(32) if chr(c) != "\n"} | {"\x7f"}
 
 
 @pytest.mark.parametrize("case", sorted(HOSTILE_NAMES))
-@pytest.mark.xfail(strict=True, reason=(
-    "BUG reported to the lead: cli.py prints blade.name inside rich markup unescaped "
-    "(rich.markup.escape missing), so '[/bold]' raises MarkupError (traceback, exit 1) and "
-    "ESC/NUL bytes reach the terminal raw; remove this marker when fixed"))
 def test_hostile_name_is_accepted_and_printed_safely(case, tmp_path, capsys):
     name = HOSTILE_NAMES[case]
     job = tmp_path / "hostile.toml"
@@ -323,10 +319,6 @@ def test_hostile_name_is_accepted_and_printed_safely(case, tmp_path, capsys):
         assert name in stdout, "the name must be printed as written, not read as console markup"
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "BUG reported to the lead: errors.InputError collapses whitespace in the problem but "
-    "not in the source, so a file name with a newline or ESC gives two lines / raw control "
-    "bytes on stderr; remove this marker when fixed"))
 def test_control_characters_in_a_path_stay_on_one_printable_line(tmp_path, capsys):
     job = tmp_path / "ctrl.toml"
     job.write_text(job_text(mesh='"demo\\u001b[31m\\u0007\\r\\nblade.stl"'))
@@ -336,10 +328,6 @@ def test_control_characters_in_a_path_stay_on_one_printable_line(tmp_path, capsy
     assert not (CONTROL & set(err)), repr(err)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "BUG reported to the lead: a 100 000-character key or path is echoed whole into the "
-    "one-line message; errors.InputError should shorten echoed text (e.g. to a few hundred "
-    "characters with an ellipsis); remove this marker when fixed"))
 @pytest.mark.parametrize("case", ["long_mesh_path", "long_unknown_key"])
 def test_messages_about_long_strings_are_bounded(case, tmp_path, capsys):
     text = BAD_JOBS[case][0]
