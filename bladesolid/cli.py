@@ -782,6 +782,56 @@ def _print_match(con, s, us):
     con.print(f"[dim]{CAUTION}[/dim]")
 
 
+def cmd_batch(args) -> int:
+    """Many job files in parallel (this machine, or a dask cluster), one summary table."""
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
+    from rich.table import Table
+    from rich.text import Text
+
+    from . import batch
+
+    if args.workers is not None and args.workers < 0:
+        raise InputError("--workers", f"must be 0 (run in this process) or more, got {args.workers}")
+    if args.workers is not None and args.scheduler:
+        raise UsageError("bladesolid batch: give either --workers (this machine) or --scheduler (a cluster), not both")
+    jobs = batch.collect_jobs(args.inputs)
+    err = _console(stderr=True)
+    progress = Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
+                        TimeRemainingColumn(), console=err, disable=not err.is_terminal)
+    task = progress.add_task(f"{args.command} of {len(jobs)} blades", total=len(jobs))
+
+    def on_done(row, done, total):
+        progress.update(task, completed=done)
+        if row["status"] not in (batch.OK, batch.OUTSIDE) and err.is_terminal:
+            progress.console.print(Text(f"failed: {row['reason']}", style="red"))
+
+    with progress:
+        result = batch.run_batch(jobs, args.out, command=args.command, force=args.force, scheduler=args.scheduler,
+                                 workers=args.workers, on_done=on_done)
+    con = _console()
+    t = Table(title=f"bladesolid batch — {args.command}, {len(result.rows)} blades, {result.where}, "
+                    f"{result.seconds:.1f} s", title_justify="left")
+    for col, just in (("blade", "left"), ("mass kg", "right"), ("CG radius m", "right"), ("radial pull N", "right"),
+                      ("CTM N·m", "right"), ("at", "left"), ("status", "left")):
+        t.add_column(col, justify=just)
+    colours = {batch.OK: "green", batch.OUTSIDE: "yellow"}
+    for r in result.rows:
+        at = "" if r["rpm"] is None else f"{_fmt(r['rpm'])} rpm, {_fmt(r['blade_angle_deg'], 4)} deg"
+        t.add_row(Text(batch._one_line(r["name"] or os.path.basename(r["job"]), 60)), _fmt(r["mass_kg"]),
+                  _fmt(r["cg_radius_m"]), _fmt(r["radial_pull_N"]), _fmt(r["ctm_Nm"]), Text(at),
+                  Text(r["status"], style=colours.get(r["status"], "red")))
+    con.print(t)
+    for r in result.failures:
+        con.print(Text(f"  {r['status']}: {r['reason']}"))
+        print(f"bladesolid: error: {r['reason']}", file=sys.stderr)
+    for r in result.rows:
+        if r["status"] == batch.OUTSIDE:
+            con.print(Text(f"  outside limits: {r['job']}: {r['reason']}"))
+    con.print(Text(f"per-blade results in {args.out}/<job>/; summary in {result.summary_csv} and {result.summary_json}"))
+    con.print(f"[dim]{CAUTION}[/dim]")
+    return result.exit_status
+
+
 # --- parser ---------------------------------------------------------------------------------
 
 
@@ -848,6 +898,20 @@ def build_parser() -> argparse.ArgumentParser:
     dm.add_argument("--force", action="store_true", help="write into an existing, non-empty folder")
     dm.add_argument("--us", action="store_true", help="print US customary units (files stay SI)")
     dm.set_defaults(func=cmd_demo)
+
+    bt = sub.add_parser("batch", help="many job files in parallel (this machine or a dask cluster), one summary")
+    bt.add_argument("inputs", nargs="+", metavar="JOBS",
+                    help="folders of job files (*.toml), job files, or text files listing job files (one per line)")
+    bt.add_argument("--out", required=True, metavar="DIR",
+                    help="results folder: DIR/<job>/report.json (or the check folder), DIR/summary.csv and .json")
+    bt.add_argument("--command", choices=["mass", "loads", "check"], default="loads",
+                    help="the analysis run for every job (default: loads)")
+    bt.add_argument("--scheduler", metavar="ADDRESS",
+                    help="a running dask scheduler, e.g. tcp://host:8786 (default: worker processes on this machine)")
+    bt.add_argument("--workers", type=int, metavar="N",
+                    help="worker processes on this machine (default: one per CPU; 0 = one job after another here)")
+    bt.add_argument("--force", action="store_true", help="replace existing results and summaries")
+    bt.set_defaults(func=cmd_batch)
 
     mt = sub.add_parser("materials", help="list the built-in materials")
     mt.set_defaults(func=cmd_materials)
