@@ -259,8 +259,7 @@ def _operating(blade, job, need_default: bool = True):
 def cmd_loads(args) -> int:
     from . import api, report
 
-    if args.json:
-        report.check_new_output(args.json, args.force)
+    _check_outputs(args.force, args.json, args.csv, args.plot, args.rpm_csv, args.rpm_plot)
     job = _job(args)
     if not job.operating_points:
         raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
@@ -271,6 +270,26 @@ def cmd_loads(args) -> int:
     from .review import loads_report
 
     data = loads_report(blade, job, ops)
+    if (args.rpm_csv or args.rpm_plot) and "rpm_sweep" not in data:
+        raise InputError("--rpm-sweep", "give the speed range (--rpm-sweep FROM:TO:STEP) for --rpm-csv / --rpm-plot")
+    if args.csv:
+        report.atomic_write_text(args.csv, report.csv_text(data["pitch_sweep"]), args.force)
+    if args.rpm_csv:
+        report.atomic_write_text(args.rpm_csv, report.csv_text(data["rpm_sweep"]), args.force)
+    if args.plot or args.rpm_plot:
+        from . import views
+
+        if args.plot:
+            lo, hi, step = job.sweep_deg
+            betas, ctm, k = api.pitch_sweep(blade, ops[0].rpm, lo, hi, step)
+            views.plot_ctm_sweep(betas, ctm, k, ops[0].blade_angle_deg, args.plot,
+                                 title=f"{blade.name} — CTM at {ops[0].rpm:g} rpm", force=args.force)
+        if args.rpm_plot:
+            rows = data["rpm_sweep"]
+            views.plot_rpm_sweep(np.array([r["rpm"] for r in rows]), np.array([r["ctm_Nm"] for r in rows]),
+                                 np.array([r["radial_pull_N"] for r in rows]), args.rpm_plot,
+                                 title=f"{blade.name} — at {ops[0].blade_angle_deg:.4g} deg",
+                                 operating_rpm=ops[0].rpm, force=args.force)
     if args.json:
         report.atomic_write_text(args.json, report.dumps(data), args.force)
     _print_loads(_console(), blade, data, ops, args.us)
@@ -850,6 +869,12 @@ def build_parser() -> argparse.ArgumentParser:
     lo = sub.add_parser("loads", help="centrifugal loads and CTM at speed and blade angle")
     _add_blade_flags(lo)
     _add_load_flags(lo)
+    lo.add_argument("--rpm-sweep", metavar="FROM:TO:STEP", help="speed sweep at the first operating point's blade angle, rpm")
+    lo.add_argument("--csv", metavar="FILE", help="write the blade-angle sweep (CTM, pitch stiffness) as CSV")
+    lo.add_argument("--plot", metavar="FILE.png", help="plot CTM and pitch stiffness over blade angle (operating angle marked)")
+    lo.add_argument("--rpm-csv", metavar="FILE", help="write the speed sweep as CSV")
+    lo.add_argument("--rpm-plot", metavar="FILE.png", help="plot CTM and radial pull over speed")
+    lo.add_argument("--proof-factor", type=float, metavar="F", help="centrifugal proof load factor (default 2)")
     lo.set_defaults(func=cmd_loads)
 
     sp = sub.add_parser("span", help="spanwise cuts: section properties, centrifugal tension, stress and CTM")

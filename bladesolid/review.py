@@ -136,10 +136,7 @@ def run_review(job, progress=None, *, with_views: bool = True) -> Review:
     data = loads_report(blade, job, ops)
     lo, hi, step = job.sweep_deg
     sweep = api.pitch_sweep(blade, ops[0].rpm, lo, hi, step)
-    rpm_rows = None
-    if job.rpm_sweep is not None:
-        rpm_rows = rpm_sweep_rows(blade, ops, job.rpm_sweep)
-        data["rpm_sweep"] = rpm_rows
+    rpm_rows = data.get("rpm_sweep")
     data["timings_s"] = {}
     rv = Review(job=job, blade=blade, report=data, ops=ops, sweep=sweep, rpm_sweep=rpm_rows)
 
@@ -214,6 +211,8 @@ def loads_report(blade, job, ops):
     }
     if job.counterweight is not None:
         data["counterweight_sizing"] = counterweight_section(blade, job, ops[0])
+    if job.rpm_sweep is not None:
+        data["rpm_sweep"] = rpm_sweep_rows(blade, ops, job.rpm_sweep)
     return data
 
 

@@ -144,3 +144,23 @@ def test_console_script_runs(demo_path):
                         "--density", "2810"], capture_output=True, text=True, timeout=120)
     assert p.returncode == 0, p.stderr
     assert "6.89" in p.stdout  # the demo blade's mass, kg
+
+
+def test_loads_sweeps_csv_and_plots(demo_path, tmp_path, capsys):
+    files = {k: tmp_path / n for k, n in (("csv", "s.csv"), ("plot", "s.png"), ("rpm_csv", "r.csv"), ("rpm_plot", "r.png"),
+                                          ("json", "l.json"))}
+    code, _, err = run(["loads", demo_path, "--units", "mm", "--material", "al-2025-t6", "--rpm", "2500",
+                        "--blade-angle", "22", "--sweep", "-10:90:0.5", "--rpm-sweep", "0:3000:250",
+                        "--csv", files["csv"], "--plot", files["plot"], "--rpm-csv", files["rpm_csv"],
+                        "--rpm-plot", files["rpm_plot"], "--json", files["json"]], capsys)
+    assert code == 0, err
+    lines = files["csv"].read_text().splitlines()
+    assert lines[0] == "blade_angle_deg,ctm_Nm,pitch_stiffness_Nm_per_rad" and len(lines) == 202
+    rows = json.loads(files["json"].read_text())["rpm_sweep"]
+    assert [r["rpm"] for r in rows] == list(range(0, 3001, 250))
+    # Ω² scaling of the speed sweep (CTM ∝ Ω² at a fixed blade angle)
+    r2500 = next(r for r in rows if r["rpm"] == 2500)
+    r1250 = next(r for r in rows if r["rpm"] == 1250)
+    assert r1250["ctm_Nm"] == pytest.approx(r2500["ctm_Nm"] / 4, rel=1e-12)
+    for png in (files["plot"], files["rpm_plot"]):
+        assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
