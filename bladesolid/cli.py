@@ -943,10 +943,35 @@ def build_parser() -> argparse.ArgumentParser:
     return p
 
 
+#: flags whose value may start with a minus sign ("--sweep -10:90:1", "--pitch-axis -1,0,0")
+_SIGNED_FLAGS = {"--sweep", "--rpm-sweep", "--blade-angle", "--pitch-change", "--precone", "--hub-centre",
+                 "--thrust-axis", "--pitch-axis", "--pitch-point"}
+
+
+def _join_signed_values(argv: list[str]) -> list[str]:
+    """Write ``--flag -value`` as ``--flag=-value`` so that a negative value is not taken for an option.
+
+    >>> _join_signed_values(["loads", "--sweep", "-10:90:1", "--force"])
+    ['loads', '--sweep=-10:90:1', '--force']
+    """
+    out, i = [], 0
+    while i < len(argv):
+        a = argv[i]
+        if a in _SIGNED_FLAGS and i + 1 < len(argv) and len(argv[i + 1]) > 1 and argv[i + 1][0] == "-" \
+                and (argv[i + 1][1].isdigit() or argv[i + 1][1] == "."):
+            out.append(f"{a}={argv[i + 1]}")
+            i += 2
+            continue
+        out.append(a)
+        i += 1
+    return out
+
+
 def main(argv=None) -> int:
     """Entry point: returns the exit status."""
     parser = build_parser()
     try:
+        argv = _join_signed_values([str(a) for a in (sys.argv[1:] if argv is None else argv)])
         args = parser.parse_args(argv)
         if not getattr(args, "command", None):
             parser.print_help()
