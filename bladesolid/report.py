@@ -380,13 +380,17 @@ def review_html(data: dict, images: dict | None = None, files: list | None = Non
 
     span = d.get("spanwise")
     if span:
-        cols = [("radius_m", "radius m"), ("area_m2", "area m²"), ("mass_outboard_kg", "mass outboard kg"),
-                ("cf_outboard_N", "tension N"), ("stress_Pa", "P/A Pa"), ("ctm_outboard_Nm", "CTM outboard N·m"),
-                ("ctm_strip_outboard_Nm", "strip CTM N·m"), ("margin_of_safety", "MS (centrifugal only)")]
+        # (key, header, factor from SI): engineering units for reading; the JSON and CSV stay SI
+        cols = [("radius_m", "radius mm", 1e3), ("area_m2", "area mm²", 1e6), ("chord_m", "chord mm", 1e3),
+                ("thickness_m", "thickness mm", 1e3), ("mass_outboard_kg", "mass outboard kg", 1.0),
+                ("cf_outboard_N", "tension kN", 1e-3), ("stress_Pa", "P/A MPa", 1e-6),
+                ("ctm_outboard_Nm", "CTM outboard N·m", 1.0), ("ctm_strip_outboard_Nm", "strip CTM N·m", 1.0),
+                ("margin_of_safety", "MS (centrifugal only)", 1.0)]
         cols = [c for c in cols if c[0] in span[0]]
-        rows = [[_num(r.get(k), 5) for k, _ in cols] for r in span]
+        rows = [[_num(None if r.get(k) is None else r[k] * f, 5) for k, _, f in cols] for r in span]
+        headers = [h for _, h, _ in cols]
         note = d.get("spanwise_note", "")
-        parts.append(f"<section><h2>Spanwise</h2><p>{_e(note)}</p>" + _table(rows, [h for _, h in cols]) + "</section>")
+        parts.append(f"<section><h2>Spanwise</h2><p>{_e(note)}</p>" + _table(rows, headers) + "</section>")
 
     hs = d.get("hot_spots")
     if hs:

@@ -1,0 +1,135 @@
+"""The whole review (`check`, `demo`): one folder with every output, the HTML page, escaping."""
+
+import json
+from html.parser import HTMLParser
+
+import numpy as np
+import pytest
+
+from bladesolid.cli import main
+
+HOSTILE = '<script>alert("x")</script> & <b>bold</b> [red]markup[/red]'
+
+
+class _Collect(HTMLParser):
+    def __init__(self):
+        super().__init__()
+        self.tags, self.text, self.scripts = [], [], 0
+
+    def handle_starttag(self, tag, attrs):
+        self.tags.append(tag)
+        if tag == "script":
+            self.scripts += 1
+
+    def handle_data(self, data):
+        self.text.append(data)
+
+
+@pytest.fixture(scope="module")
+def reviewed(tmp_path_factory, demo_path):
+    d = tmp_path_factory.mktemp("review")
+    job = d / "job.toml"
+    job.write_text(
+        f'name = {json.dumps(HOSTILE)}\nmesh = {json.dumps(str(demo_path))}\nunits = "mm"\n'
+        'material = "al-2025-t6"\nblades = 3\nstations = 8\nrpm_sweep = "0:3000:500"\n'
+        'allowable = "200 MPa"\n'
+        '[[operating_point]]\nname = "take-off"\nrpm = 2500\nblade_angle = 22.0\n'
+        '[[operating_point]]\nname = "overspeed"\nrpm = 2875\nblade_angle = 22.0\n'
+    )
+    out = d / "out"
+    assert main(["check", str(job), "--out", str(out)]) == 0
+    return out
+
+
+def test_folder_holds_every_output(reviewed):
+    names = {p.name for p in reviewed.iterdir()}
+    for n in ("report.json", "report.html", "elements.vtu", "pitch_sweep.csv", "spanwise.csv", "hot_spots.csv",
+              "operating_points.csv", "rpm_sweep.csv", "ctm_sweep.png", "spanwise.png", "hot_spots.png",
+              "render_ctm_planform.png", "render_ctm_tip.png", "render_clipped.png"):
+        assert n in names, n
+    assert not [n for n in names if n.endswith(".part")]
+
+
+def test_report_json_contract(reviewed):
+    r = json.loads((reviewed / "report.json").read_text())
+    assert r["schema"] == "bladesolid.report/1"
+    for key in ("mass_properties", "blade_angle", "operating_points", "pitch_sweep", "spanwise", "hot_spots"):
+        assert key in r
+    row = r["spanwise"][0]
+    assert {"radius_m", "area_m2", "mass_outboard_kg", "cf_outboard_N", "ctm_outboard_Nm", "stress_Pa"} <= set(row)
+    # the spanwise root row carries (nearly) the whole blade: its tension is the radial pull
+    # of the part outboard of it, a little under the whole blade's
+    op = r["operating_points"][0]
+    assert 0.98 * op["radial_pull_N"] < row["cf_outboard_N"] <= op["radial_pull_N"]
+    # element fields add up to the solid totals
+    tot = r["element_fields"]["totals"]
+    assert tot["ctm_Nm"] == pytest.approx(op["ctm_Nm"], rel=1e-9)
+    assert sum(x["ctm_pct"] for x in r["hot_spots"]["regions"]) == pytest.approx(100.0, rel=1e-9)
+    assert r["input"]["name"] == HOSTILE  # kept verbatim in the data
+
+
+def test_html_parses_holds_figures_and_escapes(reviewed):
+    html = (reviewed / "report.html").read_text()
+    r = json.loads((reviewed / "report.json").read_text())
+    p = _Collect()
+    p.feed(html)
+    assert p.scripts == 0  # the hostile name did not become a script element
+    assert "<b>bold</b>" not in html and "&lt;script&gt;" in html
+    text = " ".join(p.text)
+    assert "Results are engineering estimates" in text
+    assert f"{r['mass_properties']['mass_kg']:.6g}" in text
+    assert f"{r['operating_points'][0]['ctm_Nm']:.6g}" in text
+    assert html.count("data:image/png;base64,") >= 6  # self-contained pictures
+    assert "bladesolid 0." in text or "bladesolid" in text
+
+
+def test_renders_are_not_blank_and_differ(reviewed):
+    from PIL import Image
+
+    imgs = {}
+    for n in ("render_ctm_planform.png", "render_mass_planform.png", "render_radial_planform.png"):
+        a = np.asarray(Image.open(reviewed / n).convert("RGB")).astype(int)
+        bg = a[2, 2]
+        fraction = (np.abs(a - bg).sum(axis=-1) > 30).mean()
+        assert fraction > 0.03, n  # the blade and its colour bar cover a good part of the picture
+        assert len(np.unique(a.reshape(-1, 3), axis=0)) > 50
+        imgs[n] = a
+    a, b = imgs["render_ctm_planform.png"], imgs["render_mass_planform.png"]
+    assert np.abs(a - b).mean() > 1.0
+
+
+def test_existing_folder_needs_force(reviewed, capsys):
+    job = next(reviewed.parent.glob("job.toml"))
+    assert main(["check", str(job), "--out", str(reviewed)]) == 2
+    assert "exists already" in capsys.readouterr().err
+
+
+def test_demo_writes_everything(tmp_path, capsys):
+    d = tmp_path / "demo"
+    assert main(["demo", str(d)]) == 0
+    out = capsys.readouterr().out
+    assert "review written" in out
+    for n in ("demo_job.toml", "demo_blade.stl", "repair_job.toml", "repair_limits.toml",
+              "review/report.html", "review/report.json", "review/elements.vtu"):
+        assert (d / n).exists(), n
+    r = json.loads((d / "review" / "report.json").read_text())
+    assert r["counterweight_sizing"]["net_ctm_Nm"] == pytest.approx(0.0, abs=1e-9)
+    assert main(["demo", str(d)]) == 2  # not overwritten without --force
+
+
+@pytest.mark.slow
+def test_repair_review_registers_and_judges(tmp_path, capsys):
+    d = tmp_path / "demo"
+    assert main(["demo", str(d)]) == 0
+    capsys.readouterr()
+    code = main(["check", str(d / "repair_job.toml"), "--out", str(d / "repair")])
+    r = json.loads((d / "repair" / "report.json").read_text())
+    c = r["comparison"]
+    assert c["verdict"] in ("within limits", "outside limits")
+    assert code == (1 if c["verdict"] == "outside limits" else 0)
+    # registered into the nominal frame: the loads are those of a blade in the hub frame
+    nominal = json.loads((d / "review" / "report.json").read_text())
+    assert r["operating_points"][0]["radial_pull_N"] == pytest.approx(
+        nominal["operating_points"][0]["radial_pull_N"], rel=5e-3)
+    assert (d / "repair" / "deviation.png").exists()
+    assert c["removed_volume_m3"] > 0
