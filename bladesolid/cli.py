@@ -385,7 +385,6 @@ def cmd_check(args) -> int:
     """The whole review: JSON, CSV, plots, renders, VTU and HTML in one folder."""
     from . import review
     from .job import load_job
-    from .report import staged_folder  # noqa: F401
 
     if not str(args.job).lower().endswith(".toml"):
         raise InputError(args.job, "check takes a job file (.toml); see `bladesolid demo` for an example")

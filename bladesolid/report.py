@@ -1,116 +1,23 @@
-"""Report writers: the JSON report of CONVENTIONS §6, CSV tables, and safe (atomic) files.
+"""Report writers: the JSON report of CONVENTIONS §6, CSV tables and the HTML page.
 
-Every file is written to a temporary file in the same folder and renamed into place, so an
-interrupted run never leaves a half-written file; an existing output is only replaced when
-the caller says so (``force``).
+Files are written through :mod:`bladesolid.safefile` (temporary file, then a rename; nothing
+existing replaced without ``force``); its writers are re-exported here for convenience.
 """
 
 from __future__ import annotations
 
-import contextlib
 import csv
 import dataclasses
 import io
 import json
 import math
-import os
-import shutil
-import tempfile
 
 import numpy as np
 
 from . import CAUTION, __version__
-from .errors import InputError, OutputExistsError
+from .safefile import atomic_write_bytes, atomic_write_text, check_new_output, staged_folder  # noqa: F401
 
 SCHEMA = "bladesolid.report/1"
-
-
-# --- safe files ---------------------------------------------------------------------------
-
-
-def check_new_output(path, force: bool = False) -> None:
-    """Refuse (before any work) an output that exists, unless ``force``; check its folder."""
-    p = os.fspath(path)
-    if os.path.exists(p) and not force:
-        raise OutputExistsError(p)
-    parent = os.path.dirname(os.path.abspath(p))
-    if not os.path.isdir(parent):
-        raise InputError(p, f"the folder {parent} does not exist")
-
-
-def _umask() -> int:
-    """The process umask (read by setting and restoring it)."""
-    mask = os.umask(0o022)
-    os.umask(mask)
-    return mask
-
-
-def atomic_write_bytes(path, data: bytes, force: bool = False) -> str:
-    """Write ``data`` to ``path`` through a temporary file and a rename.
-
-    The file gets the permissions of an ordinary new file (0o666 & ~umask), not the
-    owner-only 0o600 of the temporary file.
-    """
-    p = os.fspath(path)
-    check_new_output(p, force)
-    parent = os.path.dirname(os.path.abspath(p))
-    try:
-        fd, tmp = tempfile.mkstemp(prefix=".bladesolid-", suffix=".part", dir=parent)
-    except OSError as exc:
-        raise InputError(p, f"cannot be written ({exc.strerror or exc})") from None
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            os.fchmod(fh.fileno(), 0o666 & ~_umask())
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, p)
-    except OSError as exc:  # disk full, quota, ...: nothing is left behind
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
-        raise InputError(p, f"could not be written ({exc.strerror or exc}); nothing was left behind") from None
-    except BaseException:
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
-        raise
-    return p
-
-
-def atomic_write_text(path, text: str, force: bool = False) -> str:
-    """Write text (UTF-8) atomically."""
-    return atomic_write_bytes(path, text.encode("utf-8"), force)
-
-
-@contextlib.contextmanager
-def staged_folder(path, force: bool = False):
-    """Build an output folder in a temporary sibling and move it into place at the end.
-
-    Yields the temporary folder's path. On any error (or Ctrl-C) the temporary folder is
-    removed and nothing appears at ``path``. An existing non-empty ``path`` needs ``force``.
-    """
-    p = os.path.abspath(os.fspath(path))
-    if os.path.exists(p) and not os.path.isdir(p):
-        raise InputError(p, "exists and is not a folder")
-    if os.path.isdir(p) and os.listdir(p) and not force:
-        raise OutputExistsError(p)
-    parent = os.path.dirname(p)
-    if not os.path.isdir(parent):
-        raise InputError(p, f"the folder {parent} does not exist")
-    tmp = tempfile.mkdtemp(prefix=f".{os.path.basename(p)}-", suffix=".part", dir=parent)
-    try:
-        os.chmod(tmp, 0o777 & ~_umask())  # an ordinary folder, not mkdtemp's owner-only 0o700
-        yield tmp
-        if os.path.isdir(p):
-            old = tempfile.mkdtemp(prefix=f".{os.path.basename(p)}-", suffix=".old", dir=parent)
-            os.rmdir(old)
-            os.replace(p, old)
-            os.replace(tmp, p)
-            shutil.rmtree(old, ignore_errors=True)
-        else:
-            os.replace(tmp, p)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
 
 
 # --- JSON ---------------------------------------------------------------------------------

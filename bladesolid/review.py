@@ -8,7 +8,6 @@ HTML page — into a staged temporary folder that is moved into place only when 
 
 from __future__ import annotations
 
-import io
 import math
 import os
 from dataclasses import dataclass, field
@@ -353,8 +352,6 @@ def _vtu_bytes(views, grid) -> bytes:
 
 def check(job, folder, force: bool = False, progress=None) -> Review:
     """Run the whole review of ``job`` and write it to ``folder`` (the `check` command)."""
-    from .report import check_new_output  # noqa: F401  (folder checks happen in staged_folder)
-
     p = os.path.abspath(os.fspath(folder))
     if os.path.isdir(p) and os.listdir(p) and not force:
         from .errors import OutputExistsError

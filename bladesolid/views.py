@@ -27,17 +27,16 @@ moved by the pitch motion for display only.
 
 from __future__ import annotations
 
-import contextlib
 import math
 import os
-import tempfile
 from dataclasses import dataclass
 
 import numpy as np
 
-from .errors import InputError, OutputExistsError
+from .errors import InputError
 from .fields import REGIONS, ElementFields, HotSpots, hot_spots
 from .frame import HubFrame, hub_frame, pitch_motion
+from .safefile import staged_file
 
 # --- style -----------------------------------------------------------------------------
 
@@ -106,27 +105,6 @@ def _pt(fs: int, factor: float) -> int:
 
 
 # --- safe output -----------------------------------------------------------------------
-
-
-@contextlib.contextmanager
-def staged_file(path, force: bool = False):
-    """Yield a temporary file name (same folder, same extension) that becomes ``path`` when
-    the block ends without error; refuse an existing ``path`` unless ``force``."""
-    p = os.fspath(path)
-    if os.path.exists(p) and not force:
-        raise OutputExistsError(p)
-    parent = os.path.dirname(os.path.abspath(p))
-    if not os.path.isdir(parent):
-        raise InputError(p, f"the folder {parent} does not exist")
-    fd, tmp = tempfile.mkstemp(prefix=".bladesolid-", suffix=os.path.splitext(p)[1], dir=parent)
-    os.close(fd)
-    try:
-        yield tmp
-        os.replace(tmp, p)
-    except BaseException:
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
-        raise
 
 
 # --- the element grid ------------------------------------------------------------------
