@@ -156,10 +156,9 @@ def read_transform(path, *, default_units: str = "m") -> np.ndarray:
             else:
                 M = data
         elif ext == ".toml":
-            import tomllib
+            from .io import read_toml
 
-            with open(p, "rb") as fh:
-                data = tomllib.load(fh)
+            data = read_toml(p, "transform file", 1_000_000)
             extra = set(data) - {"transform", "units", "note"}
             if extra or "transform" not in data:
                 raise InputError(p, "expected the key 'transform' (4 rows of 4 numbers) and optionally 'units' and "
@@ -837,21 +836,10 @@ def parse_limits(data: dict, path: str) -> Limits:
 def read_limits(path) -> Limits:
     """Read and validate a limits file (TOML); one-line :class:`InputError` naming the file
     and the key on any problem."""
-    import tomllib
+    from .io import read_toml
 
     p = os.fspath(path)
-    if not os.path.isfile(p):
-        raise InputError(p, "limits file not found")
-    if os.path.getsize(p) > 1_000_000:
-        raise InputError(p, "a limits file is a few lines; this one is larger than 1 MB")
-    try:
-        with open(p, "rb") as fh:
-            data = tomllib.load(fh)
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(p, f"not valid TOML ({exc})") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(p, f"cannot be read ({exc})") from None
-    return parse_limits(data, p)
+    return parse_limits(read_toml(p, "limits file", 1_000_000), p)
 
 
 @dataclass(frozen=True)

@@ -226,21 +226,9 @@ def _num(v, where: str, what: str, integer: bool = False) -> float:
 
 def read_job_file(path) -> dict:
     """Parse a TOML job file into a dict; a one-line error on any problem."""
-    import tomllib
+    from .io import read_toml
 
-    p = str(path)
-    if not os.path.isfile(p):
-        raise InputError(p, "job file not found")
-    if os.path.getsize(p) > 10_000_000:
-        raise InputError(p, "job file is larger than 10 MB; is it really a job file?")
-    try:
-        with open(p, "rb") as fh:
-            data = tomllib.load(fh)
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(p, f"not valid TOML ({exc})") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(p, f"cannot be read ({exc})") from None
-    return data
+    return read_toml(path, "job file")
 
 
 def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None = None) -> Job:
