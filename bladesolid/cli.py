@@ -73,6 +73,13 @@ def _add_load_flags(p):
     p.add_argument("--sweep", metavar="FROM:TO:STEP", help="blade-angle sweep, degrees")
 
 
+def _add_element_flags(p):
+    p.add_argument("--elements", type=int, metavar="N", help="target number of tetrahedral mass elements (finer fields)")
+    p.add_argument("--element-size", type=float, metavar="L", help="largest element edge, model unit (finer fields)")
+    p.add_argument("--field-faces", type=int, metavar="N",
+                   help="simplify surfaces above N faces for the element fields (mass and loads stay exact)")
+
+
 def _flags(args) -> dict:
     """Command-line flags as job keys (CONVENTIONS §7: a flag overrides the key)."""
     out = {}
@@ -526,6 +533,24 @@ def cmd_demo(args) -> int:
     return code
 
 
+def cmd_view(args) -> int:
+    """Open an interactive 3-D window of one per-element field (needs a display)."""
+    from . import api, fields, views
+
+    if not views.has_display():
+        raise InputError("view", "no display to open a window on (DISPLAY is not set); the PNG renders of "
+                                 "`bladesolid check` show the same fields")
+    job = _job(args)
+    if not job.operating_points:
+        raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
+    blade = api.blade_from_job(job, elements=True, progress=_progress(_console(stderr=True)))
+    op = job.operating_points[0]
+    beta = api.resolve_blade_angle(blade, op.blade_angle_deg, op.pitch_change_deg)
+    f = fields.element_fields(blade, op.rpm, beta)
+    views.render_field(blade, f, args.field, None, view=args.view, hotspots=fields.hot_spots(blade, f))
+    return 0
+
+
 def cmd_materials(args) -> int:
     from rich.table import Table
 
@@ -883,6 +908,7 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("--allowable", metavar="QUANTITY", help='material allowable stress, e.g. "240 MPa" (centrifugal margin of safety)')
     sp.add_argument("--csv", metavar="FILE", help="write the spanwise table as CSV")
     sp.add_argument("--plot", metavar="FILE.png", help="plot stress, tension, CTM and area against radius")
+    _add_element_flags(sp)
     sp.set_defaults(func=cmd_span)
 
     cp = sub.add_parser("compare", help="a repaired blade against its reference: registration, deviation, deltas, limits")
@@ -914,7 +940,7 @@ def build_parser() -> argparse.ArgumentParser:
     g = ck.add_mutually_exclusive_group()
     g.add_argument("--blade-angle", type=float, metavar="DEG")
     g.add_argument("--pitch-change", type=float, metavar="DEG")
-    ck.add_argument("--elements", type=int, metavar="N", help="target number of tetrahedral mass elements")
+    _add_element_flags(ck)
     ck.set_defaults(func=cmd_check)
 
     dm = sub.add_parser("demo", help="write the demo blade and job into DIR and run check on it")
@@ -936,6 +962,15 @@ def build_parser() -> argparse.ArgumentParser:
                     help="worker processes on this machine (default: one per CPU; 0 = one job after another here)")
     bt.add_argument("--force", action="store_true", help="replace existing results and summaries")
     bt.set_defaults(func=cmd_batch)
+
+    vw = sub.add_parser("view", help="an interactive 3-D window of a per-element field (needs a display)")
+    _add_blade_flags(vw)
+    _add_load_flags(vw)
+    vw.add_argument("--field", default="ctm_Nm",
+                    choices=["ctm_Nm", "radial_pull_N", "mass_kg", "ctm_share_band", "pull_share_band", "region"])
+    vw.add_argument("--view", default="iso", choices=["planform", "tip", "iso", "aft"])
+    _add_element_flags(vw)
+    vw.set_defaults(func=cmd_view)
 
     mt = sub.add_parser("materials", help="list the built-in materials")
     mt.set_defaults(func=cmd_materials)

@@ -173,7 +173,7 @@ def write_vtu(grid, path, force: bool = False) -> str:
 # --- scene helpers ---------------------------------------------------------------------
 
 
-def _plotter(window_size, shape=(1, 1), **kw):
+def _plotter(window_size, shape=(1, 1), interactive: bool = False, **kw):
     import pyvista as pv
 
     if not os.environ.get("DISPLAY"):
@@ -184,11 +184,20 @@ def _plotter(window_size, shape=(1, 1), **kw):
     theme.font.color = INK
     theme.font.family = "arial"
     theme.show_edges = False
-    pl = pv.Plotter(off_screen=True, window_size=list(window_size), shape=shape, theme=theme, border=False, **kw)
+    pl = pv.Plotter(off_screen=not interactive, window_size=list(window_size), shape=shape, theme=theme,
+                    border=False, **kw)
     return pl
 
 
+def has_display() -> bool:
+    """True when an interactive window can be opened (an X display is set)."""
+    return bool(os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"))
+
+
 def _finish(pl, path, force: bool):
+    if path is None:  # interactive: the user looks, turns and closes the window
+        pl.show()
+        return None
     with staged_file(path, force) as tmp:
         pl.enable_anti_aliasing("ssaa")
         pl.screenshot(tmp)
@@ -547,8 +556,9 @@ def _prepare(grid, field_name, per_volume, percentile, mesh):
 
 def render_field(blade, fields: ElementFields, field_name: str, path, view: str = "planform", *,
                  per_volume: bool = True, percentile: float = 100.0, hotspots: HotSpots | None = None,
-                 grid=None, window_size=WINDOW, title: str | None = None, force: bool = False) -> str:
-    """Render the blade coloured by one per-element field and write a PNG.
+                 grid=None, window_size=WINDOW, title: str | None = None, force: bool = False) -> str | None:
+    """Render the blade coloured by one per-element field and write a PNG (``path`` None:
+    open an interactive window instead, which needs a display — see :func:`has_display`).
 
     field_name : ``ctm_Nm``, ``radial_pull_N``, ``mass_kg``, ``volume_m3``, ``ctm_share_band``,
       ``pull_share_band``, ``region`` or ``body``
@@ -571,7 +581,7 @@ def render_field(blade, fields: ElementFields, field_name: str, path, view: str 
     top = 1.0 - (0.07 + 3.4 * fs / win[1])
     cam = _fit_camera(_scene_points(blade.frame, surface), d, up, win,
                       band=(0.05 if categorical else 0.16, top), hband=(0.0, 0.8) if categorical else (0.0, 1.0))
-    pl = _plotter(win)
+    pl = _plotter(win, interactive=path is None)
     _add_field_mesh(pl, surface, arr, field_name, info, fs, bar_title)
     pl.add_mesh(_edges(surface), color=INK, line_width=1.0, opacity=0.5)
     _add_axes(pl, blade.frame, surface, cam, _pt(fs, 0.87))

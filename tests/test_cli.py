@@ -164,3 +164,10 @@ def test_loads_sweeps_csv_and_plots(demo_path, tmp_path, capsys):
     assert r1250["ctm_Nm"] == pytest.approx(r2500["ctm_Nm"] / 4, rel=1e-12)
     for png in (files["plot"], files["rpm_plot"]):
         assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+def test_view_without_display_is_one_line(demo_path, capsys, monkeypatch):
+    monkeypatch.delenv("DISPLAY", raising=False)
+    monkeypatch.delenv("WAYLAND_DISPLAY", raising=False)
+    code, _, err = run(["view", demo_path, "--units", "mm", "--density", "2810", "--rpm", "2500"], capsys)
+    assert code == 2 and "no display" in err and len(err.strip().splitlines()) == 1
