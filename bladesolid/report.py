@@ -340,7 +340,20 @@ def review_html(data: dict, images: dict | None = None, files: list | None = Non
         )
     match = d.get("match")
     if match:
-        parts.append("<section><h2>Blade set</h2><pre>" + _e(json.dumps(match, indent=1)[:20000]) + "</pre></section>")
+        sec = "<section><h2>Blade set</h2>"
+        sec += _table([[_e(b.get("blade")), _e(b.get("name")), _num(b.get("static_moment_kgm")), _num(b.get("ctm_Nm")),
+                        _num(b.get("radial_pull_N")), _e(b.get("report"))] for b in match.get("blades", [])],
+                      ["blade", "name", "static moment kg·m", "CTM N·m", "radial pull N", "report"])
+        for label in ("best", "worst"):
+            a = match.get(label)
+            if not a:
+                continue
+            sec += f"<p><b>{label} assignment</b>: residual static imbalance {_num(a.get('imbalance_kgm'))} kg·m " \
+                   f"= {_num(a.get('imbalance_force_N'))} N at {_num(match.get('rpm'))} rpm</p>"
+            sec += _table([[_e(p.get("position")), _num(p.get("clocking_deg"), 5), _e(p.get("blade")), _e(p.get("name"))]
+                           for p in a.get("positions", [])], ["position", "clocking deg", "blade", "name"])
+        sec += f"<p>CTM spread (max − min) {_num(match.get('ctm_spread_Nm'))} N·m.</p>"
+        parts.append(sec + "</section>")
 
     if images:
         parts.append('<section><h2>Pictures</h2><div class="grid">' + "".join(_img(b, c) for c, b in images.items()) + "</div></section>")

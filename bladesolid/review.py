@@ -167,7 +167,11 @@ def run_review(job, progress=None, *, with_views: bool = True) -> Review:
         clock.start("compare")
         from . import compare as compare_mod
 
-        data["match"] = compare_mod.match_section(compare_mod.match_reports(list(job.set_reports), blades=job.blades))
+        blades = [compare_mod.read_set_report(p) for p in job.set_reports]
+        if job.blades > 1 and len(blades) != job.blades:
+            raise InputError(f"{job.source}: set", f"{len(blades)} reports given for a hub of {job.blades} blades")
+        result, rpm, warns = compare_mod.match_set(blades, rpm=ops[0].rpm)
+        data["match"] = compare_mod.match_section(result, blades, rpm, warns)
     rv.timings_s = clock.stop()
     data["timings_s"] = dict(rv.timings_s)
     return rv

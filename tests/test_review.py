@@ -133,3 +133,25 @@ def test_repair_review_registers_and_judges(tmp_path, capsys):
         nominal["operating_points"][0]["radial_pull_N"], rel=5e-3)
     assert (d / "repair" / "deviation.png").exists()
     assert c["removed_volume_m3"] > 0
+
+
+def test_check_with_a_blade_set_matches_it(tmp_path, demo_path, capsys):
+    # three blade reports (the demo blade with different balance weights), then a job naming the set
+    reports = []
+    for i, grams in enumerate((0, 30, 60)):
+        out = tmp_path / f"b{i}.json"
+        args = ["loads", str(demo_path), "--units", "mm", "--material", "al-2025-t6", "--rpm", "2500",
+                "--name", f"blade {i}", "--json", str(out)]
+        if grams:
+            args += ["--lumped-mass", f"{grams} g@20,300,0"]
+        assert main(args) == 0
+        reports.append(out.name)
+    job = tmp_path / "job.toml"
+    job.write_text(f'mesh = {json.dumps(str(demo_path))}\nunits = "mm"\nmaterial = "al-2025-t6"\nblades = 3\n'
+                   f'stations = 4\n[[operating_point]]\nrpm = 2500\n[set]\nreports = {json.dumps(reports)}\n')
+    capsys.readouterr()
+    assert main(["check", str(job), "--out", str(tmp_path / "out")]) == 0
+    r = json.loads((tmp_path / "out" / "report.json").read_text())
+    m = r["match"]
+    assert len(m["blades"]) == 3 and m["best"]["imbalance_kgm"] <= m["worst"]["imbalance_kgm"]
+    assert "Blade set" in (tmp_path / "out" / "report.html").read_text()
