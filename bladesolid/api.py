@@ -22,6 +22,7 @@ from .errors import InputError
 from .frame import BladeAngle, HubFrame, hub_frame, measure_blade_angle
 from .loads import CtmCurve, OperatingLoads, ctm_curve, operating_loads, static_moment
 from .moments import ElementMoments, Moments, moved, point_mass, relative_difference, zero_moments
+from .units import rpm_to_rad_s
 
 
 @dataclass(frozen=True)
@@ -338,7 +339,7 @@ def pitch_sweep(blade: Blade, rpm: float, lo_deg: float, hi_deg: float, step_deg
         raise InputError("--sweep", f"expected FROM:TO:STEP with TO >= FROM and STEP > 0, got {lo_deg}:{hi_deg}:{step_deg}")
     n = int(math.floor((hi_deg - lo_deg) / step_deg + 1e-9)) + 1
     betas = lo_deg + step_deg * np.arange(n)
-    omega = float(rpm) * 2 * math.pi / 60
+    omega = rpm_to_rad_s(rpm)
     curve = blade_curve(blade)
     return betas, curve.ctm(betas, omega), curve.pitch_stiffness(betas, omega)
 

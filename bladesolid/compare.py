@@ -40,6 +40,7 @@ from .errors import InputError
 from .frame import HubFrame, measure_blade_angle, rotation_about
 from .loads import OperatingLoads, operating_loads, static_moment
 from .moments import Moments, surface_volume_moments, zero_moments
+from .units import rpm_to_rad_s
 
 # --------------------------------------------------------------------------------------
 # rigid transforms (4x4, metres)
@@ -1457,7 +1458,7 @@ def _assignment_section(a: Assignment, blades: list[SetBlade], omega: float) -> 
 
 def match_section(result: MatchResult, blades: list[SetBlade], rpm: float, warnings=()) -> dict:
     """The ``match`` key of the report."""
-    omega = rpm * 2.0 * math.pi / 60.0
+    omega = rpm_to_rad_s(rpm)
     ctm = [b.ctm_Nm for b in blades]
     n = len(blades)
     return {

@@ -20,14 +20,15 @@ Everything is SI and in the hub frame of CONVENTIONS §1.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
 
 from .frame import HubFrame, chord_line, section_points
 from .loads import centrifugal_twisting_moment, moments_at_angle, radial_pull
+from .mesh import tet_signed_volumes
 from .moments import ElementMoments, point_mass
+from .units import rpm_to_rad_s
 
 #: Levels of the cumulative share bands, percent of the total.
 SHARE_LEVELS = (50, 80, 95)
@@ -47,15 +48,6 @@ CIRCULAR_RATIO = 0.8
 #: Thickness/chord below which the root transition is over (midway between a circle and a
 #: thick root airfoil section; common practice, no source).
 TRANSITION_RATIO = 0.5
-
-
-def rpm_to_rad_s(rpm: float) -> float:
-    """Angular speed Ω in rad/s from rpm.
-
-    >>> round(rpm_to_rad_s(60.0), 12) == round(2 * math.pi, 12)
-    True
-    """
-    return float(rpm) * 2.0 * math.pi / 60.0
 
 
 # --- contributions -----------------------------------------------------------------------
@@ -270,8 +262,7 @@ def element_volumes(nodes: np.ndarray, tets: np.ndarray) -> np.ndarray:
     >>> float(element_volumes(np.array([[0., 0, 0], [1, 0, 0], [0, 1, 0], [0, 0, 1]]), np.array([[0, 1, 2, 3]]))[0]) * 6
     1.0
     """
-    v = np.asarray(nodes, dtype=float)[np.asarray(tets)]
-    return np.abs(np.einsum("ij,ij->i", np.cross(v[:, 1] - v[:, 0], v[:, 2] - v[:, 0]), v[:, 3] - v[:, 0])) / 6.0
+    return np.abs(tet_signed_volumes(np.asarray(nodes, dtype=float), np.asarray(tets)))
 
 
 def element_fields(blade, rpm: float, blade_angle_deg: float | None = None, *,

@@ -16,6 +16,7 @@ import numpy as np
 
 from .frame import HubFrame, pitch_motion
 from .moments import Moments, moved, point_mass
+from .units import rpm_to_rad_s
 
 
 # --- the formulas, each written once ---------------------------------------------------
@@ -216,7 +217,7 @@ def frequency_ratio(stiffness: float, omega: float, inertia: float) -> float | N
 def operating_loads(m0: Moments, frame: HubFrame, modelled_deg: float, blade_angle_deg: float,
                     rpm: float, name: str = "", curve: CtmCurve | None = None) -> OperatingLoads:
     """All centrifugal figures of CONVENTIONS §4 at one speed (rpm) and blade angle (deg)."""
-    omega = float(rpm) * 2.0 * math.pi / 60.0
+    omega = rpm_to_rad_s(rpm)
     m = moments_at_angle(m0, frame, blade_angle_deg - modelled_deg)
     curve = curve or ctm_curve(m0, frame, modelled_deg)
     F = centrifugal_force(m, frame.k, omega)
@@ -298,7 +299,7 @@ def size_counterweight(m0: Moments, frame: HubFrame, modelled_deg: float, positi
     The counterweight turns with the blade; its CTM is linear in its mass.
     Raises ValueError when no positive mass reaches the target at that position.
     """
-    omega = float(rpm) * 2.0 * math.pi / 60.0
+    omega = rpm_to_rad_s(rpm)
     delta = blade_angle_deg - modelled_deg
     blade = float(centrifugal_twisting_moment(moments_at_angle(m0, frame, delta), frame, omega))
     unit = moments_at_angle(point_mass(1.0, position), frame, delta)

@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import InputError
+from .units import rpm_to_rad_s
 
 STAGES = ("load", "mesh", "integrate", "loads", "spanwise", "fields", "compare", "views", "report")
 
@@ -67,13 +68,13 @@ def rpm_sweep_rows(blade, ops, rpm_range) -> list[dict]:
     rpms = lo + step * np.arange(n)
     ref = ops[0]
     w0 = ref.omega_rad_s
-    scale = (rpms * 2 * math.pi / 60) ** 2 / (w0**2 if w0 > 0 else 1.0)
+    scale = rpm_to_rad_s(rpms) ** 2 / (w0**2 if w0 > 0 else 1.0)
     if w0 == 0:
         from . import api
 
         one = api.loads_at(blade, 60.0 / (2 * math.pi), ref.blade_angle_deg)  # Ω = 1 rad/s
         base_ctm, base_pull, base_k = one.ctm_Nm, one.radial_pull_N, one.pitch_stiffness_Nm_per_rad
-        scale = (rpms * 2 * math.pi / 60) ** 2
+        scale = rpm_to_rad_s(rpms) ** 2
     else:
         base_ctm, base_pull, base_k = ref.ctm_Nm, ref.radial_pull_N, ref.pitch_stiffness_Nm_per_rad
     return [

@@ -34,6 +34,7 @@ from .errors import InputError
 from .frame import blade_angle_from_chord, chord_line, pitch_motion
 from .loads import centrifugal_force, centrifugal_moment, centrifugal_twisting_moment, moments_at_angle
 from .moments import Moments, point_mass, tet_volume_moments
+from .units import rpm_to_rad_s
 
 #: What the spanwise figures include (reports print this beside the table).
 SPAN_NOTE = (
@@ -411,7 +412,7 @@ def span_table(blade, rpm: float, blade_angle_deg: float | None = None, stations
         raise InputError("allowable", f"the allowable stress must be a positive number of Pa, got {allowable_Pa!r}")
     beta = resolve_blade_angle(blade, blade_angle_deg, pitch_change_deg)
     delta = beta - blade.modelled_deg
-    omega = float(rpm) * 2.0 * math.pi / 60.0
+    omega = rpm_to_rad_s(rpm)
     frame = blade.frame
     radii = station_radii(blade, stations)
     n = len(radii)

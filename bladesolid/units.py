@@ -132,10 +132,14 @@ def parse_stress(text, source: str) -> float:
     return parse_quantity(text, "Pa", source, "stress")
 
 
-def rpm_to_rad_s(rpm: float) -> float:
-    """Angular speed in rad/s from rev/min.
+def rpm_to_rad_s(rpm):
+    """Angular speed Ω in rad/s from rev/min (scalar → float, array → array).
 
     >>> round(rpm_to_rad_s(60.0), 12) == round(2 * math.pi, 12)
     True
     """
-    return float(rpm) * 2.0 * math.pi / 60.0
+    if hasattr(rpm, "__len__"):
+        import numpy as np
+
+        return np.asarray(rpm, dtype=float) * (2.0 * math.pi / 60.0)
+    return float(rpm) * (2.0 * math.pi / 60.0)
