@@ -193,6 +193,8 @@ def load_blade(
     except InputError as exc:
         warnings.append(f"blade angle not measured: {exc.problem}")
     el = nodes = tets = body_ix = None
+    if all(b.tets is not None for b in bodies):
+        elements = True  # a volume mesh brings its elements: no meshing, so always use them
     if elements:
         from .mesh import mass_elements
 
