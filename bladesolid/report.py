@@ -111,6 +111,7 @@ def base_report(blade) -> dict:
                 "precone_deg": blade.frame.precone_deg,
             },
             "elements": None if blade.elements is None else len(blade.elements),
+            "field_resolution": getattr(blade, "field_resolution", None),
         },
         "warnings": list(blade.warnings),
     }

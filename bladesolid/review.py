@@ -146,7 +146,11 @@ def run_review(job, progress=None, *, with_views: bool = True) -> Review:
     rv.span = span_mod.span_table(blade, ops[0].rpm, ops[0].blade_angle_deg, stations=job.stations,
                                   allowable_Pa=job.allowable_Pa)
     data["spanwise"] = span_mod.spanwise_rows(rv.span)
-    data["spanwise_note"] = getattr(span_mod, "SPANWISE_NOTE", "centrifugal part only")
+    data["spanwise_note"] = span_mod.SPAN_NOTE
+    if not blade.elements_exact:
+        data["spanwise_note"] += (" The station cuts were made on the simplified copy of the surface used for the "
+                                  "element fields (input.field_resolution), so they are close to, not exactly, "
+                                  "those of the full surface.")
 
     clock.start("fields")
     from . import fields as fields_mod
