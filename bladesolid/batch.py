@@ -57,7 +57,7 @@ import socket
 import time
 from dataclasses import dataclass
 
-from .errors import InputError
+from .errors import InputError, one_line
 
 COMMANDS = ("mass", "loads", "check")
 SUMMARY_SCHEMA = "bladesolid.batch/1"
@@ -136,18 +136,11 @@ def output_names(jobs) -> list[str]:
 # --- one job (the dask task) ---------------------------------------------------------------------
 
 
-def _one_line(text, limit: int = 500) -> str:
-    """A message as one printable line of at most ``limit`` characters."""
-    s = " ".join(str(text).split())
-    s = "".join(c if c.isprintable() else f"\\x{ord(c):02x}" for c in s)
-    return s if len(s) <= limit else s[: limit - 1] + "…"
-
-
 def _about(job_path, problem) -> str:
     """The reason of a failure as one line that names the job file."""
-    text = _one_line(problem)
+    text = one_line(problem)
     job = os.fspath(job_path)
-    return text if text.startswith(job) else _one_line(f"{job}: {text}")
+    return text if text.startswith(job) else one_line(f"{job}: {text}")
 
 
 def _finite(x):
@@ -228,7 +221,7 @@ def _run(job_path, command, folder, force) -> dict:
         row.update(operating_point=o.name, rpm=_finite(o.rpm), blade_angle_deg=_finite(o.blade_angle_deg),
                    radial_pull_N=_finite(o.radial_pull_N), ctm_Nm=_finite(o.ctm_Nm))
     if status == OUTSIDE:
-        row["reason"] = _one_line("; ".join(data["comparison"].get("reasons", [])) or "outside limits")
+        row["reason"] = one_line("; ".join(data["comparison"].get("reasons", [])) or "outside limits")
     return row
 
 
@@ -269,11 +262,13 @@ def local_client(workers: int):
 
 
 def run_batch(inputs, out, *, command: str = "loads", force: bool = False, client=None,
-              scheduler: str | None = None, workers: int | None = None, on_done=None) -> BatchResult:
+              scheduler: str | None = None, workers: int | None = None, on_done=None,
+              connect_timeout_s: float = 15.0) -> BatchResult:
     """Run every job of ``inputs`` (see :func:`collect_jobs`) and write the summaries in ``out``.
 
     client : a ``distributed.Client`` to use as it is (not closed here); else
-    scheduler : address of a running dask scheduler (``tcp://host:8786``); else
+    scheduler : address of a running dask scheduler (``tcp://host:8786``; given up after
+      ``connect_timeout_s``); else
     workers : local worker processes (default: CPUs, at most one per job; 0 = in this process).
     on_done : optional callable(row, done, total) called as each job finishes.
     """
@@ -292,7 +287,6 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
     if os.path.isdir(out):
         for p in (csv_path, json_path):
             report.check_new_output(p, force)
-    os.makedirs(out, exist_ok=True)
     names = output_names(jobs)
     opts = [{"command": command, "out": out, "name": n, "force": force} for n in names]
 
@@ -309,6 +303,7 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
     own = None
     if client is None and scheduler is None and workers == 0:
         where = "in this process"
+        os.makedirs(out, exist_ok=True)
         for i, (j, o) in enumerate(zip(jobs, opts)):
             finished(i, run_job(j, o))
     else:
@@ -317,9 +312,9 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
                 from distributed import Client
 
                 try:
-                    own = client = Client(scheduler, timeout="20s")
+                    own = client = Client(scheduler, timeout=f"{connect_timeout_s}s")
                 except (OSError, TimeoutError, ValueError) as exc:
-                    raise InputError(scheduler, f"cannot reach the dask scheduler ({_one_line(exc, 200)})") from None
+                    raise InputError(scheduler, f"cannot reach the dask scheduler ({one_line(exc, 200)})") from None
                 where = scheduler
             else:
                 n = max(1, min(workers or os.cpu_count() or 1, len(jobs)))
@@ -328,6 +323,7 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
         else:
             where = f"dask client ({getattr(client.scheduler, 'address', '?')})"
         try:
+            os.makedirs(out, exist_ok=True)  # only once the workers are there to fill it
             n_workers = max(1, len(client.scheduler_info().get("workers", {})) or 1)
             threads = max(1, (os.cpu_count() or 1) // n_workers) if own is not None and scheduler is None else None
             from distributed import as_completed
@@ -344,7 +340,7 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
                 except Exception as exc:  # the worker died (memory, killed), not the blade
                     row = {c: None for c in COLUMNS}
                     row.update(job=jobs[i], status=FAILED,
-                               reason=_one_line(f"the worker running it was lost ({type(exc).__name__}: {exc})"))
+                               reason=one_line(f"the worker running it was lost ({type(exc).__name__}: {exc})"))
                 finished(i, row)
         finally:
             if own is not None:

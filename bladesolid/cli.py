@@ -832,6 +832,7 @@ def cmd_batch(args) -> int:
     from rich.text import Text
 
     from . import batch
+    from .errors import one_line
 
     if args.workers is not None and args.workers < 0:
         raise InputError("--workers", f"must be 0 (run in this process) or more, got {args.workers}")
@@ -860,7 +861,7 @@ def cmd_batch(args) -> int:
     colours = {batch.OK: "green", batch.OUTSIDE: "yellow"}
     for r in result.rows:
         at = "" if r["rpm"] is None else f"{_fmt(r['rpm'])} rpm, {_fmt(r['blade_angle_deg'], 4)} deg"
-        t.add_row(Text(batch._one_line(r["name"] or os.path.basename(r["job"]), 60)), _fmt(r["mass_kg"]),
+        t.add_row(Text(one_line(r["name"] or os.path.basename(r["job"]), 60)), _fmt(r["mass_kg"]),
                   _fmt(r["cg_radius_m"]), _fmt(r["radial_pull_N"]), _fmt(r["ctm_Nm"]), Text(at),
                   Text(r["status"], style=colours.get(r["status"], "red")))
     con.print(t)

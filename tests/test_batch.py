@@ -272,3 +272,32 @@ def test_batch_through_python_dash_m_on_local_worker_processes(tmp_path):
     assert summary["where"].startswith("local cluster") and (summary["ok"], summary["failed"]) == (3, 1)
     assert len({row["job"] for row in summary["rows"]}) == 4
     assert np.isfinite([row["ctm_Nm"] for row in summary["rows"][:3]]).all()
+
+
+@pytest.mark.slow
+def test_batch_through_a_scheduler_address(tmp_path, reference):
+    # the --scheduler route: a scheduler and workers started elsewhere (here: a LocalCluster
+    # of this test), reached only by its address, as a remote cluster would be
+    pytest.importorskip("distributed")
+    import logging
+
+    from distributed import LocalCluster
+
+    jobs = write_jobs(tmp_path / "jobs")
+    with LocalCluster(n_workers=1, threads_per_worker=1, processes=True, dashboard_address=None,
+                      silence_logs=logging.ERROR) as cluster:
+        res = batch.run_batch([jobs], tmp_path / "out", scheduler=cluster.scheduler_address)
+    assert res.where == cluster.scheduler_address and res.exit_status == 2
+    check_rows(res.rows, reference)
+
+
+@pytest.mark.slow
+def test_unreachable_scheduler_is_one_input_error_and_no_folder(tmp_path):
+    from bladesolid.errors import InputError
+
+    jobs = write_jobs(tmp_path / "jobs")
+    t0 = time.perf_counter()
+    with pytest.raises(InputError, match="cannot reach the dask scheduler"):
+        batch.run_batch([jobs], tmp_path / "out", scheduler="tcp://127.0.0.1:9", connect_timeout_s=2)
+    assert time.perf_counter() - t0 < 20
+    assert not (tmp_path / "out").exists()
