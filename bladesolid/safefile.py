@@ -113,6 +113,7 @@ def staged_file(path, force: bool = False):
     if not os.path.isdir(parent):
         raise InputError(p, f"the folder {parent} does not exist")
     fd, tmp = tempfile.mkstemp(prefix=".bladesolid-", suffix=os.path.splitext(p)[1], dir=parent)
+    os.fchmod(fd, 0o666 & ~_umask())  # writers reopen the file, which keeps its mode: not mkstemp's 0o600
     os.close(fd)
     try:
         yield tmp

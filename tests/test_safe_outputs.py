@@ -80,6 +80,19 @@ def test_atomic_file_gets_ordinary_permissions(tmp_path, umask022):
     assert stat.S_IMODE(os.stat(p).st_mode) == 0o644
 
 
+def test_staged_file_gets_ordinary_permissions(tmp_path, umask022):
+    # views write their PNG/VTU into a temporary name they reopen; the result must still be an
+    # ordinary 0o644 file, like any other output
+    from bladesolid.safefile import staged_file
+
+    target = tmp_path / "render.png"
+    with staged_file(target) as tmp:
+        with open(tmp, "wb") as fh:
+            fh.write(b"\x89PNG")
+    assert stat.S_IMODE(os.stat(target).st_mode) == 0o644
+    assert temporaries(tmp_path) == []
+
+
 def test_existing_file_is_kept_without_force_and_replaced_with_it(tmp_path):
     target = tmp_path / "r.json"
     target.write_bytes(b"precious")
