@@ -257,9 +257,10 @@ def load_blade(
 
 
 #: Surfaces with more faces than this get their element fields on a simplified copy
-#: (mass, tensor and loads always come from the full surface). TetGen fills a clean
-#: 30 000-face blade surface in about a second; a 240 000-face scan takes 30–80 s.
-DEFAULT_FIELD_FACES = 30_000
+#: (mass, tensor and loads always come from the full surface). Measured (scripts/bench.py):
+#: TetGen fills a 20 000-face simplified blade in ~0.5 s, while the 240 000-face blade takes
+#: 60–115 s, and simplified copies above ~35 000 faces can take over a minute.
+DEFAULT_FIELD_FACES = 20_000
 
 
 def _field_copies(bodies, target_faces: int):

