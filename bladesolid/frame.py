@@ -16,24 +16,8 @@ import numpy as np
 from .errors import InputError
 
 
-def _unit(v, source: str, name: str) -> np.ndarray:
-    """A direction given by the user, checked to be a finite unit vector."""
-    try:
-        a = np.asarray(v, dtype=float).reshape(3)
-    except (TypeError, ValueError):
-        raise InputError(source, f"{name} must be three numbers X,Y,Z, got {v!r}") from None
-    if not np.all(np.isfinite(a)):
-        raise InputError(source, f"{name} must be finite, got {a.tolist()}")
-    n = float(np.linalg.norm(a))
-    if n == 0.0:
-        raise InputError(source, f"{name} must not be the zero vector")
-    if abs(n - 1.0) > 1e-6:
-        sug = ", ".join(f"{x:.6g}" for x in a / n)
-        raise InputError(source, f"{name} must be a unit vector; it has length {n:.6g} (did you mean [{sug}]?)")
-    return a / n
-
-
 def _point(v, source: str, name: str) -> np.ndarray:
+    """(3,) a point or vector given by the user, checked to be three finite numbers."""
     try:
         p = np.asarray(v, dtype=float).reshape(3)
     except (TypeError, ValueError):
@@ -41,6 +25,18 @@ def _point(v, source: str, name: str) -> np.ndarray:
     if not np.all(np.isfinite(p)):
         raise InputError(source, f"{name} must be finite, got {p.tolist()}")
     return p
+
+
+def _unit(v, source: str, name: str) -> np.ndarray:
+    """A direction given by the user, checked to be a finite unit vector."""
+    a = _point(v, source, name)
+    n = float(np.linalg.norm(a))
+    if n == 0.0:
+        raise InputError(source, f"{name} must not be the zero vector")
+    if abs(n - 1.0) > 1e-6:
+        sug = ", ".join(f"{x:.6g}" for x in a / n)
+        raise InputError(source, f"{name} must be a unit vector; it has length {n:.6g} (did you mean [{sug}]?)")
+    return a / n
 
 
 def rotation_about(axis, angle_rad: float) -> np.ndarray:

@@ -315,8 +315,8 @@ def _memory_guard(size: int):
             resource.setrlimit(resource.RLIMIT_AS, old)
 
 
-class _GuardedBinary(_io.BufferedReader):
-    """A binary file that raises EOFError when ``readline`` keeps returning nothing at EOF.
+class _EofGuard:
+    """A file whose ``readline`` raises EOFError when it keeps returning nothing at EOF.
 
     Some parsers loop ``count`` times over ``readline()`` with ``count`` taken from the file;
     at the end of a corrupt file that would spin for as long as the count says.
@@ -333,18 +333,12 @@ class _GuardedBinary(_io.BufferedReader):
         return line
 
 
-class _GuardedText(_io.TextIOWrapper):
-    """Text counterpart of :class:`_GuardedBinary`."""
+class _GuardedBinary(_EofGuard, _io.BufferedReader):
+    """A guarded binary file (see :class:`_EofGuard`)."""
 
-    _eof_reads = 0
 
-    def readline(self, size=-1):
-        line = super().readline(size)
-        if not line:
-            self._eof_reads += 1
-            if self._eof_reads > 1000:
-                raise EOFError("the file ended before the counts in it were satisfied")
-        return line
+class _GuardedText(_EofGuard, _io.TextIOWrapper):
+    """A guarded text file (see :class:`_EofGuard`)."""
 
 
 @contextlib.contextmanager

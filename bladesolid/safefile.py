@@ -107,11 +107,8 @@ def staged_file(path, force: bool = False):
     """Yield a temporary file name (same folder, same extension) that becomes ``path`` when
     the block ends without error; refuse an existing ``path`` unless ``force``."""
     p = os.fspath(path)
-    if os.path.exists(p) and not force:
-        raise OutputExistsError(p)
+    check_new_output(p, force)
     parent = os.path.dirname(os.path.abspath(p))
-    if not os.path.isdir(parent):
-        raise InputError(p, f"the folder {parent} does not exist")
     fd, tmp = tempfile.mkstemp(prefix=".bladesolid-", suffix=os.path.splitext(p)[1], dir=parent)
     os.fchmod(fd, 0o666 & ~_umask())  # writers reopen the file, which keeps its mode: not mkstemp's 0o600
     os.close(fd)
