@@ -224,6 +224,24 @@ def _num(v, where: str, what: str, integer: bool = False) -> float:
     return float(v)
 
 
+def _checked_tables(value, source: str, key: str, allowed: set, required: tuple):
+    """[(where, table), ...] of an array of tables ``[[key]]``, each checked for unknown and
+    missing keys (``where`` names the file, the table and its number for messages)."""
+    if not isinstance(value, list) or not all(isinstance(t, dict) for t in value):
+        raise InputError(source, f"'{key}' must be an array of tables ([[{key}]])")
+    out = []
+    for i, t in enumerate(value, 1):
+        where = f"{source}: {key} {i}"
+        for k in t:
+            if k not in allowed:
+                raise InputError(where, f"unknown key {k!r}; expected {', '.join(sorted(allowed))}")
+        for k in required:
+            if k not in t:
+                raise InputError(where, f"missing required key {k!r}")
+        out.append((where, t))
+    return out
+
+
 def read_job_file(path) -> dict:
     """Parse a TOML job file into a dict; a one-line error on any problem."""
     from .io import read_toml
@@ -321,16 +339,8 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
     if "operating_point" in merged and "rpm" in from_flag:
         merged.pop("operating_point")  # --rpm replaces the job's operating points
     if "operating_point" in merged:
-        tables = merged["operating_point"]
-        if not isinstance(tables, list) or not all(isinstance(t, dict) for t in tables):
-            raise InputError(source, "'operating_point' must be an array of tables ([[operating_point]])")
-        for i, t in enumerate(tables, 1):
-            where = f"{source}: operating_point {i}"
-            for k in t:
-                if k not in OPERATING_KEYS:
-                    raise InputError(where, f"unknown key {k!r}; expected {', '.join(sorted(OPERATING_KEYS))}")
-            if "rpm" not in t:
-                raise InputError(where, "missing required key 'rpm'")
+        tables = _checked_tables(merged["operating_point"], source, "operating_point", OPERATING_KEYS, ("rpm",))
+        for i, (where, t) in enumerate(tables, 1):
             rpm = _num(t["rpm"], where, "rpm")
             if rpm < 0:
                 raise InputError(where, f"rpm must not be negative, got {rpm}")
@@ -397,17 +407,8 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
 
     lumped = []
     if "lumped_mass" in merged:
-        tables = merged["lumped_mass"]
-        if not isinstance(tables, list) or not all(isinstance(t, dict) for t in tables):
-            raise InputError(source, "'lumped_mass' must be an array of tables ([[lumped_mass]])")
-        for i, t in enumerate(tables, 1):
-            where = f"{source}: lumped_mass {i}"
-            for k in t:
-                if k not in LUMPED_KEYS:
-                    raise InputError(where, f"unknown key {k!r}; expected {', '.join(sorted(LUMPED_KEYS))}")
-            for k in ("mass", "position"):
-                if k not in t:
-                    raise InputError(where, f"missing required key {k!r}")
+        tables = _checked_tables(merged["lumped_mass"], source, "lumped_mass", LUMPED_KEYS, ("mass", "position"))
+        for i, (where, t) in enumerate(tables, 1):
             nm = t.get("name", f"lumped mass {i}")
             if not isinstance(nm, str):
                 raise InputError(where, f"name must be a string, got {nm!r}")
