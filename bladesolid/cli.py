@@ -40,9 +40,10 @@ class _Tagged(argparse.Action):
         namespace.densities = items
 
 
-def _add_blade_flags(p, job_allowed: bool = True):
-    p.add_argument("input", metavar="JOB.toml|MESH" if job_allowed else "MESH",
-                   help="a job file (.toml) or a blade mesh (STL/OBJ/PLY/OFF, .msh/.vtu/.inp)")
+def _add_blade_flags(p, job_allowed: bool = True, positional: bool = True, json_flag: bool = True):
+    if positional:
+        p.add_argument("input", metavar="JOB.toml|MESH" if job_allowed else "MESH",
+                       help="a job file (.toml) or a blade mesh (STL/OBJ/PLY/OFF, .msh/.vtu/.inp)")
     p.add_argument("--units", help="length unit of the mesh: mm, cm, m, in or ft (required for a mesh)")
     p.add_argument("--density", action=_Tagged, dest="densities", metavar="QUANTITY",
                    help='density with its unit, e.g. "2810 kg/m^3" (bare number: kg/m^3); once, or once per body')
@@ -60,7 +61,8 @@ def _add_blade_flags(p, job_allowed: bool = True):
     p.add_argument("--reference-radius", type=float, metavar="R", help="reference station radius (model unit)")
     p.add_argument("--reference-fraction", type=float, metavar="F", help="reference station as a fraction of the tip radius (default 0.75)")
     p.add_argument("--name", help="blade name shown in the reports")
-    p.add_argument("--json", metavar="FILE", help="write the JSON report here")
+    if json_flag:
+        p.add_argument("--json", metavar="FILE", help="write the JSON report here")
     p.add_argument("--force", action="store_true", help="overwrite existing output files")
     p.add_argument("--us", action="store_true", help="print US customary units (the JSON stays SI)")
 
@@ -935,12 +937,14 @@ def build_parser() -> argparse.ArgumentParser:
     ck = sub.add_parser("check", help="the whole review of a job: JSON, CSV, plots, renders, VTU and HTML in one folder")
     ck.add_argument("job", metavar="JOB.toml")
     ck.add_argument("--out", required=True, metavar="DIR", help="output folder (created; refused if not empty without --force)")
-    ck.add_argument("--force", action="store_true", help="replace an existing output folder")
-    ck.add_argument("--us", action="store_true", help="print US customary units (files stay SI)")
-    ck.add_argument("--rpm", metavar="N[,N...]", help="replace the job's operating points by these speeds")
-    g = ck.add_mutually_exclusive_group()
-    g.add_argument("--blade-angle", type=float, metavar="DEG")
-    g.add_argument("--pitch-change", type=float, metavar="DEG")
+    _add_blade_flags(ck, positional=False, json_flag=False)
+    _add_load_flags(ck)
+    ck.add_argument("--rpm-sweep", metavar="FROM:TO:STEP", help="speed sweep, rpm")
+    ck.add_argument("--stations", metavar="N|R1,R2,...", help="spanwise stations: a count or radii (model unit)")
+    ck.add_argument("--allowable", metavar="QUANTITY", help='material allowable stress, e.g. "240 MPa"')
+    ck.add_argument("--proof-factor", type=float, metavar="F", help="centrifugal proof load factor (default 2)")
+    ck.add_argument("--reference", metavar="MESH", help="the nominal blade to compare this one with")
+    ck.add_argument("--limits", metavar="FILE", help="limits file (TOML) for the comparison")
     _add_element_flags(ck)
     ck.set_defaults(func=cmd_check)
 
