@@ -451,8 +451,10 @@ def _add_station(pl, blade, surface, cam: _Camera, fs: int, overlay: bool):
            halign="right" if right_side else "left", valign="bottom")
 
 
-def _add_field_mesh(pl, mesh, grid_name, name, clim_info, fs, scalar_title, show_bar=True, bar_pos=None):
-    """Add a mesh coloured by a per-element field; categorical fields get a labelled key."""
+def _add_field_mesh(pl, mesh, grid_name, name, clim_info, fs, scalar_title, show_bar=True, bar_pos=None,
+                    category_texts=None):
+    """Add a mesh coloured by a per-element field; categorical fields get a labelled key
+    (``category_texts`` replaces the key's labels, e.g. with each region's share)."""
     style = FIELD_STYLES[name]
     common = dict(ambient=0.5, diffuse=0.55, specular=0.03, smooth_shading=False)
     if style.categories is not None:
@@ -463,6 +465,8 @@ def _add_field_mesh(pl, mesh, grid_name, name, clim_info, fs, scalar_title, show
         else:
             colors = [BAND_COLORS[c] for c in cats]
             texts = [BAND_LABELS[c] for c in cats]
+        if category_texts is not None:
+            texts = list(category_texts)
         values = np.asarray(mesh.cell_data[grid_name])
         idx = np.searchsorted(np.array(cats), values)
         mesh.cell_data["_category"] = idx.astype(float)
@@ -582,7 +586,13 @@ def render_field(blade, fields: ElementFields, field_name: str, path, view: str 
     cam = _fit_camera(_scene_points(blade.frame, surface), d, up, win,
                       band=(0.05 if categorical else 0.16, top), hband=(0.0, 0.8) if categorical else (0.0, 1.0))
     pl = _plotter(win, interactive=path is None)
-    _add_field_mesh(pl, surface, arr, field_name, info, fs, bar_title)
+    texts = None
+    if field_name == "region" and hotspots is not None:
+        # the hot-spot shares on the picture itself, beside each region's colour
+        rows = {row["region"]: row for row in hotspots.table}
+        texts = [f"{n}: {rows[n]['ctm_pct']:.1f} % of CTM, {rows[n]['radial_pull_pct']:.1f} % of pull"
+                 if n in rows else n for n in REGIONS]
+    _add_field_mesh(pl, surface, arr, field_name, info, fs, bar_title, category_texts=texts)
     pl.add_mesh(_edges(surface), color=INK, line_width=1.0, opacity=0.5)
     _add_axes(pl, blade.frame, surface, cam, _pt(fs, 0.87))
     _add_station(pl, blade, surface, cam, _pt(fs, 0.87), overlay=view in ("planform", "aft", "tip"))
