@@ -171,3 +171,26 @@ def test_view_without_display_is_one_line(demo_path, capsys, monkeypatch):
     monkeypatch.delenv("WAYLAND_DISPLAY", raising=False)
     code, _, err = run(["view", demo_path, "--units", "mm", "--density", "2810", "--rpm", "2500"], capsys)
     assert code == 2 and "no display" in err and len(err.strip().splitlines()) == 1
+
+
+def test_two_bodies_each_with_its_own_density(tmp_path, capsys):
+    # a blade-like bar and a separate sheath-like strip in one file: one density each, in order
+    # (bodies are numbered by descending volume); mass = Σ ρ V (box volumes: a·b·c exactly)
+    bar = trimesh.creation.box([40.0, 600.0, 12.0])
+    bar.apply_translation([0, 400, 0])
+    strip = trimesh.creation.box([4.0, 200.0, 4.0])
+    strip.apply_translation([-30.0, 500.0, 0.0])
+    both = trimesh.util.concatenate([bar, strip])
+    p = tmp_path / "two.stl"
+    both.export(p)
+    out = tmp_path / "m.json"
+    code, _, err = run(["mass", p, "--units", "mm", "--density", "2810", "--density", "8890 kg/m^3", "--json", out],
+                       capsys)
+    assert code == 0, err
+    r = json.loads(out.read_text())
+    expected = 2810 * 40 * 600 * 12 * 1e-9 + 8890 * 4 * 200 * 4 * 1e-9
+    assert r["mass_properties"]["mass_kg"] == pytest.approx(expected, rel=1e-9)
+    assert [b["density_kg_m3"] for b in r["input"]["bodies"]] == [2810.0, 8890.0]
+    code, _, err = run(["mass", p, "--units", "mm", "--density", "2810", "--density", "8890", "--density", "1",
+                        "--json", tmp_path / "x.json"], capsys)
+    assert code == 2 and "3 densities given for 2 bodies" in err
