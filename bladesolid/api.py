@@ -312,6 +312,16 @@ class MassProperties:
     surface_check_rel_error: float
     surface_check_method: str
 
+    @property
+    def surface_check_ok(self) -> bool:
+        """True when the two independent routes agree to round-off (≤ SURFACE_CHECK_TOLERANCE)."""
+        return bool(self.surface_check_rel_error <= SURFACE_CHECK_TOLERANCE)
+
+
+#: Largest relative disagreement between the two routes to the moments that counts as
+#: round-off (both are exact for the same closed surface; double precision).
+SURFACE_CHECK_TOLERANCE = 1e-9
+
 
 def principal_axes(inertia: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Principal moments (ascending) and axes (columns, right-handed, each with its largest

@@ -209,6 +209,10 @@ def cmd_mass(args) -> int:
     blade = api.blade_from_job(job, elements=args.check_elements, progress=_progress(err))
     _warn(err, blade)
     props = api.mass_properties(blade)
+    if not props.surface_check_ok:
+        err.print(f"[yellow]warning:[/yellow] the two independent routes to the moments disagree by "
+                  f"{props.surface_check_rel_error:.1e} ({props.surface_check_method}); the surface may be "
+                  "self-intersecting or overlapping — check the mesh")
     data = report.base_report(blade)
     data["mass_properties"] = report.mass_section(props)
     data["blade_angle"] = report.blade_angle_section(blade)

@@ -61,6 +61,7 @@ def mass_section(props) -> dict:
         "static_moment_kgm": props.static_moment_kgm,
         "surface_check_rel_error": props.surface_check_rel_error,
         "surface_check_method": props.surface_check_method,
+        "surface_check_ok": props.surface_check_ok,
     }
 
 

@@ -190,6 +190,10 @@ def loads_report(blade, job, ops):
     props = api.mass_properties(blade)
     data = report.base_report(blade)
     data["mass_properties"] = report.mass_section(props)
+    if not props.surface_check_ok:
+        data["warnings"].append(
+            f"the two independent routes to the moments disagree by {props.surface_check_rel_error:.1e} "
+            f"({props.surface_check_method}); the surface may be self-intersecting or overlapping")
     data["blade_angle"] = report.blade_angle_section(blade)
     data["operating_points"] = [report.operating_point_row(o) for o in ops]
     lo, hi, step = job.sweep_deg
