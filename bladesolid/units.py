@@ -69,6 +69,31 @@ def unit_label(kind: str, system: str = "si") -> str:
     return si if system == "si" else us
 
 
+#: Exact factors to SI of the few density units almost every job uses, so that the common
+#: case does not pay for building pint's registry (~0.4 s); pint parses everything else
+#: (and the tests check these factors against it).
+_FAST_UNITS: dict[str, tuple[str, float]] = {
+    "kg/m^3": ("kg/m^3", 1.0), "kg/m3": ("kg/m^3", 1.0), "kg/m**3": ("kg/m^3", 1.0),
+    "g/cm^3": ("kg/m^3", 1000.0), "g/cm3": ("kg/m^3", 1000.0), "g/cm**3": ("kg/m^3", 1000.0),
+    "lb/in^3": ("kg/m^3", LB / INCH**3), "lb/in3": ("kg/m^3", LB / INCH**3), "lb/in**3": ("kg/m^3", LB / INCH**3),
+    "kg": ("kg", 1.0), "g": ("kg", 1e-3), "lb": ("kg", LB),
+}
+
+
+def _fast_quantity(s: str, si_unit: str):
+    """``"2810 kg/m^3"`` → 2810.0 without pint for the units of :data:`_FAST_UNITS`, else None."""
+    parts = s.split()
+    if len(parts) != 2:
+        return None
+    unit = _FAST_UNITS.get(parts[1])
+    if unit is None or unit[0] != si_unit:
+        return None
+    try:
+        return float(parts[0]) * unit[1]
+    except ValueError:
+        return None
+
+
 @functools.lru_cache(maxsize=1)
 def _registry():
     import pint
@@ -96,6 +121,8 @@ def parse_quantity(text, si_unit: str, source: str, what: str, signed: bool = Fa
         try:
             value = float(s)
         except ValueError:
+            value = _fast_quantity(s, si_unit)
+        if value is None:
             import pint
 
             ureg = _registry()
