@@ -781,8 +781,7 @@ def cmd_match(args) -> int:
     """Assign the blades of a set to hub positions for the smallest static imbalance."""
     from . import compare, report
 
-    if args.json:
-        report.check_new_output(args.json, args.force)
+    _check_outputs(args.force, args.json, args.plot)
     if args.rpm is not None and not (math.isfinite(args.rpm) and args.rpm >= 0):
         raise InputError("--rpm", f"must be a non-negative number, got {args.rpm}")
     blades = [compare.read_set_report(p) for p in args.reports]
@@ -795,6 +794,10 @@ def cmd_match(args) -> int:
         data = {"schema": report.SCHEMA, "tool": {"name": "bladesolid", "version": __version__}, "caution": CAUTION,
                 "input": {"reports": list(args.reports)}, "warnings": list(warnings), "match": section}
         report.atomic_write_text(args.json, report.dumps(data), args.force)
+    if args.plot:
+        from .views import plot_match
+
+        plot_match(report.jsonable(section), args.plot, force=args.force)
     _print_match(_console(), section, args.us)
     return 0
 
@@ -934,6 +937,7 @@ def build_parser() -> argparse.ArgumentParser:
     ma.add_argument("reports", nargs="+", metavar="REPORT.json", help="bladesolid JSON reports (loads or check), one per blade")
     ma.add_argument("--rpm", type=float, metavar="N", help="speed for the imbalance force (default: the reports' rpm)")
     ma.add_argument("--json", metavar="FILE", help="write the JSON report here")
+    ma.add_argument("--plot", metavar="FILE.png", help="draw the hub with the best and the worst assignment")
     ma.add_argument("--force", action="store_true", help="overwrite existing output files")
     ma.add_argument("--us", action="store_true", help="print US customary units (the JSON stays SI)")
     ma.set_defaults(func=cmd_match)

@@ -333,6 +333,10 @@ def write_review(rv: Review, folder, force: bool = False, progress=None, with_vi
                                                grid=grid, hotspots=rv.hot_spots)
             images["CTM contribution inside the blade, cut at stations (reference station included)"] = files["render_clipped.png"]
             files["elements.vtu"] = _vtu_bytes(views, grid)
+        if data.get("match"):
+            files["blade_set.png"] = _png(views.plot_match, report.jsonable(data["match"]),
+                                          title=f"Blade set — {rv.blade.name}")
+            images["the blade set on the hub: best and worst assignment"] = files["blade_set.png"]
         if rv.comparison is not None:
             d = rv.comparison.deviation
             files["deviation.png"] = _png(views.render_deviation, d.vertices, d.faces, d.values,

@@ -909,3 +909,52 @@ def plot_hot_spots(hotspots: HotSpots, path, title: str = "", *, force: bool = F
     fig.text(0.02, -0.02, "\n".join(f"{k}: {v}" for k, v in defs.items()), fontsize=7, color="#55554f",
              ha="left", va="top")
     return _save_figure(fig, path, force)
+
+
+def plot_match(match: dict, path, title: str = "", *, force: bool = False) -> str:
+    """The hub seen from the front for the best and the worst assignment of a blade set.
+
+    match : the ``match`` section of a report (:func:`bladesolid.compare.match_section`).
+    Each blade is a spoke at its position's clocking angle, labelled with its number and
+    static moment (kg·mm); the residual static imbalance is drawn as an arrow from the hub
+    centre, magnified so that it can be seen, with its value in kg·mm and N at the set's rpm.
+    """
+    fig = _figure((10.0, 5.2))
+    axes = fig.subplots(1, 2)
+    blades = {b["blade"]: b for b in match["blades"]}
+    worst_kgm = max(match["worst"]["imbalance_kgm"], 1e-30)
+    for ax, label in zip(axes, ("best", "worst")):
+        a = match[label]
+        ax.set_aspect("equal")
+        ax.axis("off")
+        ax.add_patch(_circle((0.0, 0.0), 0.18, "#d9dcd4"))
+        for p in a["positions"]:
+            th = np.radians(90.0 + p["clocking_deg"])  # position 1 at twelve o'clock
+            b = blades[p["blade"]]
+            ax.plot([0.18 * np.cos(th), np.cos(th)], [0.18 * np.sin(th), np.sin(th)], color=INK, lw=3.0,
+                    solid_capstyle="round")
+            c, s = np.cos(th), np.sin(th)
+            ax.text(1.06 * c, 1.06 * s + (0.08 if s > 0.3 else -0.08 if s < -0.3 else 0.0),
+                    f"pos {p['position']}: blade {p['blade']}\n{_num(b['static_moment_kgm'] * 1e3, '.6g')} kg·mm",
+                    ha="left" if c > 0.3 else "right" if c < -0.3 else "center",
+                    va="bottom" if s > 0.3 else "top" if s < -0.3 else "center", fontsize=8, color=INK)
+        # the residual, magnified: the worst assignment's residual is drawn 0.8 long
+        r = a["imbalance_kgm"]
+        d = np.radians(a.get("imbalance_direction_deg", 0.0))  # measured from x (to the right) about k
+        length = 0.8 * r / worst_kgm
+        if length > 1e-3:
+            ax.annotate("", xy=(length * np.cos(d), length * np.sin(d)), xytext=(0.0, 0.0),
+                        arrowprops=dict(arrowstyle="-|>", color=PLOT_COLORS["stiffness"], lw=2.0))
+        ax.set_xlim(-1.9, 1.9)
+        ax.set_ylim(-1.5, 1.5)
+        ax.set_title(f"{label} assignment: residual {_num(r * 1e3)} kg·mm = {_num(a['imbalance_force_N'])} N "
+                     f"at {_num(match['rpm'])} rpm", fontsize=9, color=INK)
+    fig.suptitle((title or "Blade set on the hub") + " — seen from the front; arrow: residual static imbalance "
+                 "(drawn to scale between the two)", fontsize=10, color=INK)
+    return _save_figure(fig, path, force)
+
+
+def _circle(centre, radius, color):
+    from matplotlib.patches import Circle
+
+    return Circle(centre, radius, color=color, zorder=0)

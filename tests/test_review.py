@@ -155,3 +155,8 @@ def test_check_with_a_blade_set_matches_it(tmp_path, demo_path, capsys):
     m = r["match"]
     assert len(m["blades"]) == 3 and m["best"]["imbalance_kgm"] <= m["worst"]["imbalance_kgm"]
     assert "Blade set" in (tmp_path / "out" / "report.html").read_text()
+    assert (tmp_path / "out" / "blade_set.png").read_bytes()[:4] == b"\x89PNG"
+    # the same from `match`, with its picture
+    png = tmp_path / "set.png"
+    assert main(["match", *[str(tmp_path / r) for r in reports], "--plot", str(png)]) == 0
+    assert png.read_bytes()[:4] == b"\x89PNG"
