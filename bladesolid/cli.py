@@ -354,7 +354,8 @@ def _print_loads(con, blade, data, ops, us):
         f"[dim]({pl['source']})[/dim]"
     )
     r = data["rotor"]
-    con.print(f"polar moment of inertia, {r['blades']} blades: {_fmt(cv(r['polar_inertia_rotor_kgm2'], 'inertia'))} {lab('inertia')} (blades only)")
+    con.print(f"polar moment of inertia of the rotor ({r['blades']} blade{'s' if r['blades'] != 1 else ''}, blades only): "
+              f"{_fmt(cv(r['polar_inertia_rotor_kgm2'], 'inertia'))} {lab('inertia')}")
     if "counterweight_sizing" in data:
         s = data["counterweight_sizing"]
         con.print(
