@@ -13,6 +13,7 @@ All results are SI, in the hub frame (CONVENTIONS §1), as frozen dataclasses.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass, field
 
@@ -21,7 +22,7 @@ import numpy as np
 from .errors import InputError
 from .frame import BladeAngle, HubFrame, hub_frame, measure_blade_angle
 from .loads import CtmCurve, OperatingLoads, ctm_curve, operating_loads, static_moment
-from .moments import ElementMoments, Moments, moved, point_mass, relative_difference, zero_moments
+from .moments import ElementMoments, Moments, point_mass, relative_difference, zero_moments
 from .units import rpm_to_rad_s
 
 
@@ -100,6 +101,11 @@ class Blade:
     def moments(self) -> Moments:
         """Everything that turns with the blade: bodies plus lumped masses (hub frame)."""
         return self.solid_moments + self.lumped_moments
+
+    @functools.cached_property
+    def ctm_curve(self) -> CtmCurve:
+        """CTM(β) of everything that turns with the blade (coefficients per Ω²), computed once."""
+        return ctm_curve(self.moments, self.frame, self.modelled_deg)
 
     @property
     def modelled_deg(self) -> float:
@@ -227,7 +233,8 @@ def load_blade(
         ]
         limit = DEFAULT_FIELD_FACES if field_faces is None else int(field_faces)
         if any(b.tets is None and len(b.faces) > limit for b in hub_bodies):
-            hub_bodies, field_info = _field_copies(hub_bodies, limit)
+            volumes = [abs(m.mass) / mat.density_kg_m3 for m, mat in zip(body_moments, mats)]
+            hub_bodies, field_info = _field_copies(hub_bodies, volumes, limit)
             warnings.append(
                 f"element fields on a simplified copy ({field_info['faces_field']} of {field_info['faces_full']} "
                 f"faces, volume change {field_info['volume_change']:+.2e}); mass, tensor and loads stay exact from "
@@ -275,32 +282,29 @@ def load_blade(
 DEFAULT_FIELD_FACES = 20_000
 
 
-def _field_copies(bodies, target_faces: int):
+def _field_copies(bodies, volumes, target_faces: int):
     """Bodies with their surfaces simplified to about ``target_faces`` faces in all (for the
-    element fields only), and a record of what was done."""
+    element fields only), and a record of what was done. ``volumes``: the bodies' exact
+    volumes, m³ (already integrated from the full surfaces)."""
     from .fieldres import field_surface
     from .moments import surface_volume_moments
 
     total = sum(len(b.faces) for b in bodies)
     out, methods = [], []
-    full = field = 0
-    vol_full = vol_field = 0.0
-    for b in bodies:
-        full += len(b.faces)
-        vol_full += abs(surface_volume_moments(b.vertices, b.faces).mass)
-        if b.tets is not None:
+    vol_field = 0.0
+    for b, vol in zip(bodies, volumes):
+        if b.tets is not None:  # a volume mesh keeps its own elements
             out.append(b)
-            field += len(b.faces)
-            vol_field += abs(surface_volume_moments(b.vertices, b.faces).mass)
+            vol_field += vol
             continue
         share = max(200, int(target_faces * len(b.faces) / total))
         report = {}
         v, f = field_surface(b.vertices, b.faces, share, report=report)
         methods.append(report.get("method", "input"))
         out.append(type(b)(b.name, v, f, None))
-        field += len(f)
         vol_field += abs(surface_volume_moments(v, f).mass)
-    info = {"faces_full": full, "faces_field": field, "methods": methods,
+    vol_full = sum(volumes)
+    info = {"faces_full": total, "faces_field": sum(len(b.faces) for b in out), "methods": methods,
             "volume_change": vol_field / vol_full - 1.0 if vol_full else 0.0}
     return out, info
 
@@ -396,7 +400,7 @@ def mass_properties(blade: Blade) -> MassProperties:
 
 def blade_curve(blade: Blade) -> CtmCurve:
     """The CTM(β) curve of the blade with its lumped masses (coefficients per Ω²)."""
-    return ctm_curve(blade.moments, blade.frame, blade.modelled_deg)
+    return blade.ctm_curve
 
 
 def resolve_blade_angle(blade: Blade, blade_angle_deg: float | None = None,
@@ -419,21 +423,20 @@ def loads_at(blade: Blade, rpm: float, blade_angle_deg: float | None = None,
                            curve=blade_curve(blade))
 
 
+def loads_for_job(blade: Blade, job) -> list[OperatingLoads]:
+    """Loads at every operating point of a :class:`bladesolid.job.Job` (in its order)."""
+    return [loads_at(blade, o.rpm, o.blade_angle_deg, o.pitch_change_deg, name=o.name) for o in job.operating_points]
+
+
 def pitch_sweep(blade: Blade, rpm: float, lo_deg: float, hi_deg: float, step_deg: float):
     """(β (deg), CTM (N·m), pitch stiffness (N·m/rad)) arrays over a blade-angle range."""
-    if not (step_deg > 0 and hi_deg >= lo_deg):
-        raise InputError("--sweep", f"expected FROM:TO:STEP with TO >= FROM and STEP > 0, got {lo_deg}:{hi_deg}:{step_deg}")
-    n = int(math.floor((hi_deg - lo_deg) / step_deg + 1e-9)) + 1
-    betas = lo_deg + step_deg * np.arange(n)
+    from .job import range_points
+
+    betas = range_points(lo_deg, hi_deg, step_deg, "--sweep")
     omega = rpm_to_rad_s(rpm)
     curve = blade_curve(blade)
     return betas, curve.ctm(betas, omega), curve.pitch_stiffness(betas, omega)
 
-
-def hub_to_model_moments(blade: Blade, m: Moments) -> Moments:
-    """Moments expressed back in the model frame (for cross-checks with CAD figures)."""
-    R, t = blade.frame.model_to_hub()
-    return moved(m, R.T, -R.T @ t)
 
 
 # --- from a job ---------------------------------------------------------------------------

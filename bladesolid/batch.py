@@ -182,14 +182,13 @@ def run_job(job_path: str, options: dict) -> dict:
 
 def _run(job_path, command, folder, force) -> dict:
     from . import api, report
-    from .errors import OutputExistsError
-    from .job import load_job
+    from .job import load_job, require_operating_points
     from .review import loads_report
+    from .safefile import check_new_folder
 
     if command not in COMMANDS:
         raise InputError("--command", f"expected one of {', '.join(COMMANDS)}, got {command!r}")
-    if os.path.isdir(folder) and os.listdir(folder) and not force:
-        raise OutputExistsError(folder)  # refused before any work
+    check_new_folder(folder, force)  # refused before any work
     job = load_job(job_path)
     status = OK
     if command == "check":
@@ -201,11 +200,9 @@ def _run(job_path, command, folder, force) -> dict:
             status = OUTSIDE
     else:
         blade = api.blade_from_job(job, elements=False)
-        ops = [api.loads_at(blade, o.rpm, o.blade_angle_deg, o.pitch_change_deg, name=o.name)
-               for o in job.operating_points]
+        ops = api.loads_for_job(blade, job)
         if command == "loads":
-            if not ops:
-                raise InputError(job.source, "no operating point: add [[operating_point]] with an rpm")
+            require_operating_points(job)
             data = loads_report(blade, job, ops)
         else:
             data = report.base_report(blade)

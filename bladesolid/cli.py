@@ -16,6 +16,7 @@ import numpy as np
 
 from . import CAUTION, __version__
 from .errors import InputError
+from .job import require_operating_points
 
 
 class UsageError(Exception):
@@ -136,14 +137,23 @@ def _console(stderr=False):
     return con
 
 
+#: What each stage of loading a blade (api.load_blade) and of a review (review.STAGES) does.
+_STAGE_LABELS = {
+    "load": "reading and checking the mesh", "integrate surface": "integrating the closed surface",
+    "mesh": "filling the solid with tetrahedral mass elements", "integrate elements": "integrating the elements",
+    "integrate": "integrating element moments", "loads": "centrifugal loads and sweeps",
+    "spanwise": "spanwise station cuts", "fields": "per-element fields and hot spots",
+    "compare": "comparing with the reference / matching the set", "views": "plots, renders and element file",
+    "report": "JSON, CSV and HTML report",
+}
+
+
 def _progress(console):
     """A callable(stage) that shows the current stage on stderr."""
-    labels = {"load": "reading and checking the mesh", "integrate surface": "integrating the closed surface",
-              "mesh": "filling the solid with tetrahedral mass elements", "integrate elements": "integrating the elements"}
 
     def show(stage):
         if console.is_terminal:
-            console.print(f"[dim]… {labels.get(stage, stage)}[/dim]")
+            console.print(f"[dim]… {_STAGE_LABELS.get(stage, stage)}[/dim]")
     return show
 
 
@@ -255,31 +265,16 @@ def _print_mass(con, blade, props, us):
     con.print(f"[dim]{CAUTION}[/dim]")
 
 
-def _operating(blade, job, need_default: bool = True):
-    """Operating points of the job (or a single one from --rpm), loads at each."""
-    from . import api
-
-    if not job.operating_points:
-        if need_default:
-            raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
-        return []
-    return [
-        api.loads_at(blade, op.rpm, op.blade_angle_deg, op.pitch_change_deg, name=op.name)
-        for op in job.operating_points
-    ]
-
-
 def cmd_loads(args) -> int:
     from . import api, report
 
     _check_outputs(args.force, args.json, args.csv, args.plot, args.rpm_csv, args.rpm_plot)
     job = _job(args)
-    if not job.operating_points:
-        raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
+    require_operating_points(job)
     err = _console(stderr=True)
     blade = api.blade_from_job(job, elements=False, progress=_progress(err))
     _warn(err, blade)
-    ops = _operating(blade, job)
+    ops = api.loads_for_job(blade, job)
     from .review import loads_report
 
     data = loads_report(blade, job, ops)
@@ -375,11 +370,7 @@ def _stage_progress(console):
 
     from .review import STAGES
 
-    labels = {"load": "reading and checking the mesh", "mesh": "filling the solid with tetrahedral mass elements",
-              "integrate": "integrating element moments", "loads": "centrifugal loads and sweeps",
-              "spanwise": "spanwise station cuts", "fields": "per-element fields and hot spots",
-              "compare": "comparing with the reference / matching the set", "views": "plots, renders and element file",
-              "report": "JSON, CSV and HTML report"}
+    labels = _STAGE_LABELS
     if not console.is_terminal:
         t0 = time.perf_counter()
 
@@ -402,24 +393,19 @@ def cmd_check(args) -> int:
 
     if not str(args.job).lower().endswith(".toml"):
         raise InputError(args.job, "check takes a job file (.toml); see `bladesolid demo` for an example")
-    out = os.path.abspath(args.out)
-    if os.path.isdir(out) and os.listdir(out) and not args.force:
-        from .errors import OutputExistsError
-
-        raise OutputExistsError(args.out)
     job = load_job(args.job, _flags(args))
     err = _console(stderr=True)
     show, prog = _stage_progress(err)
     if prog is not None:
         prog.start()
     try:
-        rv = review.run_review(job, show)
-        for w in rv.blade.warnings:
-            err.print(f"[yellow]warning:[/yellow] {_esc(w)}")
-        names = review.write_review(rv, args.out, args.force, show)
+        rv = review.check(job, args.out, args.force, show)
     finally:
         if prog is not None:
             prog.stop()
+    for w in rv.blade.warnings:
+        err.print(f"[yellow]warning:[/yellow] {_esc(w)}")
+    names = rv.files
     _print_loads(_console(), rv.blade, rv.report, rv.ops, args.us)
     con = _console()
     con.print(f"review written to [bold]{_esc(args.out)}[/bold]: " + ", ".join(names))
@@ -516,16 +502,10 @@ def cmd_demo(args) -> int:
     from .demo import write_demo_meshes
     from .report import atomic_write_text
 
-    folder = os.path.abspath(args.dir)
-    if os.path.isdir(folder) and os.listdir(folder) and not args.force:
-        from .errors import OutputExistsError
+    from .safefile import check_new_folder
 
-        raise OutputExistsError(args.dir)
-    if os.path.exists(folder) and not os.path.isdir(folder):
-        raise InputError(args.dir, "exists and is not a folder")
-    parent = os.path.dirname(folder)
-    if not os.path.isdir(parent):
-        raise InputError(args.dir, f"the folder {parent} does not exist")
+    check_new_folder(args.dir, args.force)
+    folder = os.path.abspath(args.dir)
     os.makedirs(folder, exist_ok=True)
     write_demo_meshes(folder)
     job_path = os.path.join(args.dir, "demo_job.toml")
@@ -548,8 +528,7 @@ def cmd_view(args) -> int:
         raise InputError("view", "no display to open a window on (DISPLAY is not set); the PNG renders of "
                                  "`bladesolid check` show the same fields")
     job = _job(args)
-    if not job.operating_points:
-        raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
+    require_operating_points(job)
     blade = api.blade_from_job(job, elements=True, progress=_progress(_console(stderr=True)))
     op = job.operating_points[0]
     beta = api.resolve_blade_angle(blade, op.blade_angle_deg, op.pitch_change_deg)
@@ -581,8 +560,7 @@ def cmd_span(args) -> int:
 
     _check_outputs(args.force, args.json, args.csv, args.plot)
     job = _job(args)
-    if not job.operating_points:
-        raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
+    require_operating_points(job)
     err = _console(stderr=True)
     blade = api.blade_from_job(job, elements=True, progress=_progress(err))
     _warn(err, blade)
@@ -664,8 +642,7 @@ def cmd_compare(args) -> int:
     job = _job(args)
     if job.reference is None:
         raise InputError("--reference", "compare needs the reference (nominal) blade: --reference MESH")
-    if not job.operating_points:
-        raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
+    require_operating_points(job)
     err = _console(stderr=True)
     from .review import compare_job
 

@@ -112,6 +112,13 @@ def check_rigid(T, source: str) -> np.ndarray:
     return M
 
 
+def _transform_table(data: dict, path: str, default_units: str, expected: str):
+    """(matrix, units) of a transform given as a table {transform, units?, note?}."""
+    if set(data) - {"transform", "units", "note"} or "transform" not in data:
+        raise InputError(path, f"expected {expected} and optionally 'units' and 'note'; got keys {sorted(data)}")
+    return data["transform"], data.get("units", default_units)
+
+
 def read_transform(path, *, default_units: str = "m") -> np.ndarray:
     """A rigid transform (repaired → reference model frame) from a file, in metres.
 
@@ -149,22 +156,14 @@ def read_transform(path, *, default_units: str = "m") -> np.ndarray:
                     raise InputError(p, "a comparison report without comparison.registration.transform")
                 M, units = reg["transform"], "m"
             elif isinstance(data, dict):
-                extra = set(data) - {"transform", "units", "note"}
-                if extra or "transform" not in data:
-                    raise InputError(p, "expected a 4x4 list, or an object with keys 'transform' (4x4) and optionally "
-                                        f"'units' and 'note'; got keys {sorted(data)}")
-                M, units = data["transform"], data.get("units", default_units)
+                M, units = _transform_table(data, p, default_units, "a 4x4 list, or an object with keys 'transform' (4x4)")
             else:
                 M = data
         elif ext == ".toml":
             from .io import read_toml
 
             data = read_toml(p, "transform file", 1_000_000)
-            extra = set(data) - {"transform", "units", "note"}
-            if extra or "transform" not in data:
-                raise InputError(p, "expected the key 'transform' (4 rows of 4 numbers) and optionally 'units' and "
-                                    f"'note'; got keys {sorted(data)}")
-            M, units = data["transform"], data.get("units", default_units)
+            M, units = _transform_table(data, p, default_units, "the key 'transform' (4 rows of 4 numbers)")
         else:
             rows = []
             with open(p, encoding="utf-8") as fh:

@@ -183,6 +183,18 @@ def parse_range(text, source: str, key: str) -> tuple[float, float, float]:
     return lo, hi, step
 
 
+def range_points(lo: float, hi: float, step: float, source: str = "range") -> np.ndarray:
+    """The points lo, lo + step, … up to hi (included when on the grid) of a FROM:TO:STEP range.
+
+    >>> range_points(0.0, 1.0, 0.25).tolist()
+    [0.0, 0.25, 0.5, 0.75, 1.0]
+    """
+    if not (step > 0 and hi >= lo):
+        raise InputError(source, f"expected FROM:TO:STEP with TO >= FROM and STEP > 0, got {lo}:{hi}:{step}")
+    n = int(math.floor((hi - lo) / step + 1e-9)) + 1
+    return lo + step * np.arange(n)
+
+
 def parse_vec3(text, source: str, key: str) -> tuple[float, float, float]:
     """``"X,Y,Z"`` or a list of three numbers → floats.
 
@@ -489,6 +501,13 @@ def load_job(path, flags: dict | None = None) -> Job:
     """Read and validate a job file, with command-line flags overriding its keys."""
     data = read_job_file(path)
     return build_job(data, str(path), os.path.dirname(os.path.abspath(str(path))), flags)
+
+
+def require_operating_points(job: Job) -> tuple[OperatingPoint, ...]:
+    """The job's operating points; an :class:`InputError` naming the job when it has none."""
+    if not job.operating_points:
+        raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
+    return job.operating_points
 
 
 def hub_frame_of(job: Job):

@@ -112,7 +112,7 @@ def base_report(blade) -> dict:
                 "precone_deg": blade.frame.precone_deg,
             },
             "elements": None if blade.elements is None else len(blade.elements),
-            "field_resolution": getattr(blade, "field_resolution", None),
+            "field_resolution": blade.field_resolution,
         },
         "warnings": list(blade.warnings),
     }

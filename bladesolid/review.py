@@ -15,6 +15,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import InputError
+from .job import require_operating_points
 from .units import rpm_to_rad_s
 
 STAGES = ("load", "mesh", "integrate", "loads", "spanwise", "fields", "compare", "views", "report")
@@ -35,6 +36,7 @@ class Review:
     hot_spots: object | None = None
     comparison: object | None = None
     reference: object | None = None
+    files: list = field(default_factory=list)
     timings_s: dict = field(default_factory=dict)
 
 
@@ -62,25 +64,19 @@ class _Clock:
 
 
 def rpm_sweep_rows(blade, ops, rpm_range) -> list[dict]:
-    """CTM and radial pull over speed at the first operating point's blade angle (Ω² scaling)."""
-    lo, hi, step = rpm_range
-    n = int(math.floor((hi - lo) / step + 1e-9)) + 1
-    rpms = lo + step * np.arange(n)
-    ref = ops[0]
-    w0 = ref.omega_rad_s
-    scale = rpm_to_rad_s(rpms) ** 2 / (w0**2 if w0 > 0 else 1.0)
-    if w0 == 0:
-        from . import api
+    """CTM, radial pull and pitch stiffness over speed at the first operating point's blade
+    angle: each is Ω² times its value at Ω = 1 rad/s (CONVENTIONS §4)."""
+    from . import api
+    from .job import range_points
 
-        one = api.loads_at(blade, 60.0 / (2 * math.pi), ref.blade_angle_deg)  # Ω = 1 rad/s
-        base_ctm, base_pull, base_k = one.ctm_Nm, one.radial_pull_N, one.pitch_stiffness_Nm_per_rad
-        scale = rpm_to_rad_s(rpms) ** 2
-    else:
-        base_ctm, base_pull, base_k = ref.ctm_Nm, ref.radial_pull_N, ref.pitch_stiffness_Nm_per_rad
+    rpms = range_points(*rpm_range, "rpm_sweep")
+    beta = ops[0].blade_angle_deg
+    unit = api.loads_at(blade, 60.0 / (2.0 * math.pi), beta)  # the figures per (rad/s)²
     return [
-        {"rpm": float(r), "blade_angle_deg": ref.blade_angle_deg, "ctm_Nm": float(base_ctm * s),
-         "radial_pull_N": float(base_pull * s), "pitch_stiffness_Nm_per_rad": float(base_k * s)}
-        for r, s in zip(rpms, scale)
+        {"rpm": float(r), "blade_angle_deg": beta, "ctm_Nm": float(unit.ctm_Nm * w2),
+         "radial_pull_N": float(unit.radial_pull_N * w2),
+         "pitch_stiffness_Nm_per_rad": float(unit.pitch_stiffness_Nm_per_rad * w2)}
+        for r, w2 in zip(rpms, rpm_to_rad_s(rpms) ** 2)
     ]
 
 
@@ -96,8 +92,7 @@ def compare_job(job, transform=None, reference_units=None, progress=None):
 
     if job.reference is None:
         raise InputError(job.source, "no reference blade: give --reference MESH (or the job key 'reference')")
-    if not job.operating_points:
-        raise InputError(job.source, "no speed given: add --rpm N (or [[operating_point]] in the job file)")
+    require_operating_points(job)
     limits = compare.read_limits(job.limits) if job.limits else None
     T = compare.read_transform(transform) if transform else None
     lumped = tuple(api.LumpedMass(n, m, np.asarray(p, float)) for n, m, p in job.lumped)
@@ -117,8 +112,7 @@ def run_review(job, progress=None, *, with_views: bool = True) -> Review:
     from . import api
 
     clock = _Clock(progress)
-    if not job.operating_points:
-        raise InputError(job.source, "no operating point: add [[operating_point]] with an rpm (or --rpm N)")
+    require_operating_points(job)
     comparison = reference = None
     transform = None
     if job.reference:
@@ -132,7 +126,7 @@ def run_review(job, progress=None, *, with_views: bool = True) -> Review:
     blade = api.blade_from_job(job, elements=True, model_transform=transform,
                                progress=lambda s: clock.start(stage_cb.get(s, "load")))
     clock.start("loads")
-    ops = [api.loads_at(blade, o.rpm, o.blade_angle_deg, o.pitch_change_deg, name=o.name) for o in job.operating_points]
+    ops = api.loads_for_job(blade, job)
     data = loads_report(blade, job, ops)
     lo, hi, step = job.sweep_deg
     sweep = api.pitch_sweep(blade, ops[0].rpm, lo, hi, step)
@@ -369,11 +363,9 @@ def _vtu_bytes(views, grid) -> bytes:
 
 def check(job, folder, force: bool = False, progress=None) -> Review:
     """Run the whole review of ``job`` and write it to ``folder`` (the `check` command)."""
-    p = os.path.abspath(os.fspath(folder))
-    if os.path.isdir(p) and os.listdir(p) and not force:
-        from .errors import OutputExistsError
+    from .safefile import check_new_folder
 
-        raise OutputExistsError(p)
+    check_new_folder(folder, force)  # before any work
     rv = run_review(job, progress)
-    write_review(rv, folder, force, progress)
+    rv.files = write_review(rv, folder, force, progress)
     return rv

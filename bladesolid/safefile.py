@@ -26,6 +26,20 @@ def check_new_output(path, force: bool = False) -> None:
         raise InputError(p, f"the folder {parent} does not exist")
 
 
+def check_new_folder(path, force: bool = False) -> None:
+    """Refuse (before any work) an output folder that is a file, that is not empty (unless
+    ``force``), or whose parent folder does not exist. Messages name ``path`` as given."""
+    p = os.fspath(path)
+    full = os.path.abspath(p)
+    if os.path.exists(full) and not os.path.isdir(full):
+        raise InputError(p, "exists and is not a folder")
+    if os.path.isdir(full) and os.listdir(full) and not force:
+        raise OutputExistsError(p)
+    parent = os.path.dirname(full)
+    if not os.path.isdir(parent):
+        raise InputError(p, f"the folder {parent} does not exist")
+
+
 def _umask() -> int:
     """The process umask (read by setting and restoring it)."""
     mask = os.umask(0o022)
@@ -77,13 +91,8 @@ def staged_folder(path, force: bool = False):
     removed and nothing appears at ``path``. An existing non-empty ``path`` needs ``force``.
     """
     p = os.path.abspath(os.fspath(path))
-    if os.path.exists(p) and not os.path.isdir(p):
-        raise InputError(p, "exists and is not a folder")
-    if os.path.isdir(p) and os.listdir(p) and not force:
-        raise OutputExistsError(p)
+    check_new_folder(p, force)
     parent = os.path.dirname(p)
-    if not os.path.isdir(parent):
-        raise InputError(p, f"the folder {parent} does not exist")
     tmp = tempfile.mkdtemp(prefix=f".{os.path.basename(p)}-", suffix=".part", dir=parent)
     try:
         os.chmod(tmp, 0o777 & ~_umask())  # an ordinary folder, not mkdtemp's owner-only 0o700
