@@ -515,8 +515,10 @@ def cmd_demo(args) -> int:
     ns = argparse.Namespace(job=job_path, out=os.path.join(args.dir, "review"), force=True, us=args.us)
     code = cmd_check(ns)
     con = _console()
-    con.print(f"next: the repair scenario — bladesolid check {os.path.join(args.dir, 'repair_job.toml')} "
-              f"--out {os.path.join(args.dir, 'repair-review')}")
+    # the command as the user typed it (e.g. .venv/bin/bladesolid), so the hint can be pasted
+    prog = sys.argv[0] if os.path.basename(sys.argv[0]) == "bladesolid" else "bladesolid"
+    con.print(f"next: the repair scenario — {_esc(prog)} check {_esc(os.path.join(args.dir, 'repair_job.toml'))} "
+              f"--out {_esc(os.path.join(args.dir, 'repair-review'))}")
     return code
 
 

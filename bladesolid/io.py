@@ -394,7 +394,7 @@ def _read_surface(source: str, ext: str, size: int):
     if not len(faces):
         hint = _sniff(head)
         extra = f" (the content looks like {hint}, not {what})" if hint and hint != what else ""
-        raise InputError(source, f"contains no triangles{extra}; expected a {what} surface")
+        raise InputError(source, f"contains no triangles{extra}; expected {'an' if what[:1].upper() in 'AEIOU' else 'a'} {what} surface")
     return vertices, faces, part, what
 
 
