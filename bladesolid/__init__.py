@@ -12,6 +12,6 @@ __version__ = "0.1.0"
 
 CAUTION = (
     "Results are engineering estimates, not airworthiness or certification data. "
-    "Defer to the type-certificate holder's data, the applicable regulations and codes, "
-    "and licensed engineers and repair stations."
+    "Defer to the type-certificate holder's or manufacturer's data, the applicable "
+    "regulations and codes, and licensed engineers and repair stations."
 )

@@ -8,7 +8,7 @@ Typical use::
     op = api.loads_at(blade, rpm=2500, blade_angle_deg=30.0)
     print(props.mass_kg, op.ctm_Nm)
 
-All results are SI, in the hub frame (CONVENTIONS §1), as frozen dataclasses.
+All results are SI, in the hub frame (docs/CONVENTIONS.md §1), as frozen dataclasses.
 """
 
 from __future__ import annotations
@@ -315,7 +315,7 @@ def _field_copies(bodies, volumes, target_faces: int):
 @dataclass(frozen=True)
 class MassProperties:
     """Mass properties of the blade (bodies + lumped masses) at the modelled position,
-    hub frame, SI (CONVENTIONS §6 ``mass_properties``)."""
+    hub frame, SI (docs/CONVENTIONS.md §6 ``mass_properties``)."""
 
     mass_kg: float
     volume_m3: float

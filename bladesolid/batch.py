@@ -62,7 +62,7 @@ from .errors import InputError, one_line
 COMMANDS = ("mass", "loads", "check")
 SUMMARY_SCHEMA = "bladesolid.batch/1"
 
-#: summary columns, in order (units in the names; CONVENTIONS §6 keys where they exist)
+#: summary columns, in order (units in the names; docs/CONVENTIONS.md §6 keys where they exist)
 COLUMNS = ("job", "name", "status", "mass_kg", "cg_radius_m", "operating_point", "rpm", "blade_angle_deg",
            "radial_pull_N", "ctm_Nm", "output", "seconds", "reason")
 

@@ -1,4 +1,4 @@
-"""The ``bladesolid`` command line: argument handling and printing only (CONVENTIONS §7).
+"""The ``bladesolid`` command line: argument handling and printing only (docs/CONVENTIONS.md §7).
 
 Every command is a thin layer over :mod:`bladesolid.api`. Exit status: 0 done, 1 done but
 a limit is exceeded, 2 bad input or usage (one line on stderr naming the file and the
@@ -84,7 +84,7 @@ def _add_element_flags(p):
 
 
 def _flags(args) -> dict:
-    """Command-line flags as job keys (CONVENTIONS §7: a flag overrides the key)."""
+    """Command-line flags as job keys (docs/CONVENTIONS.md §7: a flag overrides the key)."""
     out = {}
     for key in ("units", "name", "hub_centre", "thrust_axis", "pitch_axis", "pitch_point", "precone",
                 "rotation", "blades", "reference_radius", "reference_fraction", "rpm", "blade_angle",

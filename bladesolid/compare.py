@@ -939,7 +939,7 @@ class Comparison:
 
     @property
     def verdict(self) -> str:
-        """``"within limits"`` / ``"outside limits"`` (CONVENTIONS: exactly these two values).
+        """``"within limits"`` / ``"outside limits"`` (docs/CONVENTIONS.md: exactly these two values).
 
         Without a limits file nothing is checked: "within limits" with ``limits_checked`` false.
         """
@@ -1087,7 +1087,7 @@ def _figures_section(b: BladeFigures) -> dict:
 
 
 def comparison_section(c: Comparison) -> dict:
-    """The ``comparison`` key of the report (CONVENTIONS §7), plus documented extra keys."""
+    """The ``comparison`` key of the report (docs/CONVENTIONS.md §7), plus documented extra keys."""
     r = c.registration
     d = c.delta
     dev = c.deviation
@@ -1171,7 +1171,7 @@ def comparison_section(c: Comparison) -> dict:
 # --------------------------------------------------------------------------------------
 
 
-#: The schema of the reports read for set matching (CONVENTIONS §6; the same string as
+#: The schema of the reports read for set matching (docs/CONVENTIONS.md §6; the same string as
 #: ``bladesolid.report.SCHEMA``, not imported from there: report is downstream of compare).
 REPORT_SCHEMA = "bladesolid.report/1"
 

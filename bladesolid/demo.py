@@ -1,7 +1,7 @@
 """Parametric demo blade: the invented Brightwater Propellers BW-3 (3 blades, 2.0 m, aluminium).
 
 The blade is lofted from planar sections normal to the pitch axis and modelled directly in the
-hub frame of CONVENTIONS §1 with the identity job: hub centre at the origin, ``z`` the rotation
+hub frame of docs/CONVENTIONS.md §1 with the identity job: hub centre at the origin, ``z`` the rotation
 axis pointing forward (thrust), ``y`` the pitch axis pointing outboard, ``x = y × z``, right-hand
 rotation, so the leading edge faces ``t = k × e = -x``. All lengths here are millimetres.
 
@@ -343,7 +343,7 @@ def blade_surface(params: BladeParams | None = None) -> tuple[np.ndarray, np.nda
     Returns
     -------
     vertices : (n, 3) float64
-        mm, hub frame (CONVENTIONS §1, identity job).
+        mm, hub frame (docs/CONVENTIONS.md §1, identity job).
     faces : (m, 3) int64
         Outward-wound triangles; the surface is watertight and 2-manifold: lofted bands
         between consecutive rings (each quad split along its shorter diagonal), a planar fan
@@ -486,7 +486,7 @@ def write_demo_meshes(outdir) -> tuple[Path, ...]:
     meta = {
         "schema": "bladesolid.demo_variants/1",
         "blade": BladeParams().name,
-        "frame": ("hub frame of CONVENTIONS §1 (z thrust axis, y pitch axis outboard, "
+        "frame": ("hub frame of docs/CONVENTIONS.md §1 (z thrust axis, y pitch axis outboard, "
                   "x = y × z, right-hand rotation, leading edge towards -x); the scanned file "
                   "is x' = R x + t with transform_from_hub_frame"),
         "density_kg_m3": DEMO_DENSITY_KG_M3,

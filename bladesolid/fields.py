@@ -15,7 +15,7 @@ Two ways to read the fields:
 * **hot spots** — the share of mass, radial pull and CTM carried by five regions: shank/root,
   leading-edge band, mid-chord body, trailing-edge band and tip.
 
-Everything is SI and in the hub frame of CONVENTIONS §1.
+Everything is SI and in the hub frame of docs/CONVENTIONS.md §1.
 """
 
 from __future__ import annotations
@@ -325,7 +325,7 @@ class SectionTrack:
     """Leading and trailing edges of sections normal to e along the span (hub frame, modelled).
 
     radii_m : (n,) station radii (y), ascending
-    leading_edge_m, trailing_edge_m : (n, 3) chord-line ends of each section (CONVENTIONS §2)
+    leading_edge_m, trailing_edge_m : (n, 3) chord-line ends of each section (docs/CONVENTIONS.md §2)
     chord_m : (n,) chord length;  thickness_ratio : (n,) section width normal to the chord / chord
     """
 

@@ -1,4 +1,4 @@
-"""Hub frame, blade angle and pitch rotation (CONVENTIONS §1–§2).
+"""Hub frame, blade angle and pitch rotation (docs/CONVENTIONS.md §1–§2).
 
 Hub frame: origin O at the hub centre; ``y = e`` the pitch-change axis (outboard);
 ``z`` the component of the rotation axis ``k`` normal to ``e`` (thrust, forward);
@@ -181,7 +181,7 @@ def hub_frame(
 def pitch_motion(frame: HubFrame, delta_deg: float) -> tuple[np.ndarray, np.ndarray]:
     """Rigid motion (R, t), hub frame, that sets the blade ``delta_deg`` toward coarse.
 
-    r' = P + R (r − P), R the right-handed rotation by Δβ about a = s·e (CONVENTIONS §2).
+    r' = P + R (r − P), R the right-handed rotation by Δβ about a = s·e (docs/CONVENTIONS.md §2).
     """
     R = rotation_about(frame.a, math.radians(delta_deg))
     P = frame.P
@@ -232,7 +232,7 @@ def section_points(surfaces, radius: float) -> np.ndarray:
 
 def chord_line(points: np.ndarray, frame: HubFrame) -> tuple[np.ndarray, np.ndarray]:
     """(leading edge, trailing edge) of a section: the two points farthest apart, the one
-    facing the direction of motion t being the leading edge (CONVENTIONS §2)."""
+    facing the direction of motion t being the leading edge (docs/CONVENTIONS.md §2)."""
     from scipy.spatial import ConvexHull, QhullError
 
     xz = points[:, [0, 2]]

@@ -1,4 +1,4 @@
-"""Centrifugal loads in steady rotation, in closed form from the mass moments (CONVENTIONS §4).
+"""Centrifugal loads in steady rotation, in closed form from the mass moments (docs/CONVENTIONS.md §4).
 
 Every function takes mass moments in the hub frame (a :class:`~bladesolid.moments.Moments`
 or, broadcasting over elements, :class:`~bladesolid.moments.ElementMoments`) and the angular
@@ -79,7 +79,7 @@ def radial_pull(m, frame: HubFrame, omega: float):
 
 def moments_at_angle(m0, frame: HubFrame, delta_deg: float):
     """Moments (hub frame) of the blade turned ``delta_deg`` toward coarse from the modelled
-    position, by the rigid motion of CONVENTIONS §3 (no element is moved)."""
+    position, by the rigid motion of docs/CONVENTIONS.md §3 (no element is moved)."""
     R, t = pitch_motion(frame, delta_deg)
     return moved(m0, R, t)
 
@@ -216,7 +216,7 @@ def frequency_ratio(stiffness: float, omega: float, inertia: float) -> float | N
 
 def operating_loads(m0: Moments, frame: HubFrame, modelled_deg: float, blade_angle_deg: float,
                     rpm: float, name: str = "", curve: CtmCurve | None = None) -> OperatingLoads:
-    """All centrifugal figures of CONVENTIONS §4 at one speed (rpm) and blade angle (deg)."""
+    """All centrifugal figures of docs/CONVENTIONS.md §4 at one speed (rpm) and blade angle (deg)."""
     omega = rpm_to_rad_s(rpm)
     m = moments_at_angle(m0, frame, blade_angle_deg - modelled_deg)
     curve = curve or ctm_curve(m0, frame, modelled_deg)

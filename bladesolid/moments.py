@@ -8,7 +8,7 @@ the coordinates are given:
 * ``first``  m c = ∫ r dm                 (kg·m, shape (3,))
 * ``second`` S = ∫ r rᵀ dm                (kg·m², shape (3, 3))
 
-The inertia tensor is ``I = tr(S)·1 − S`` (CONVENTIONS §3).
+The inertia tensor is ``I = tr(S)·1 − S`` (docs/CONVENTIONS.md §3).
 
 Two independent routes give the totals: the tetrahedral mass elements (closed form for a
 linear tetrahedron, Tonon 2004) and the closed surface alone (divergence theorem over the

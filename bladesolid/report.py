@@ -1,4 +1,4 @@
-"""Report writers: the JSON report of CONVENTIONS §6, CSV tables and the HTML page.
+"""Report writers: the JSON report of docs/CONVENTIONS.md §6, CSV tables and the HTML page.
 
 Files are written through :mod:`bladesolid.safefile` (temporary file, then a rename; nothing
 existing replaced without ``force``); its writers are re-exported here for convenience.
@@ -49,7 +49,7 @@ def dumps(report: dict) -> str:
 
 
 def mass_section(props) -> dict:
-    """``mass_properties`` of CONVENTIONS §6 from :class:`bladesolid.api.MassProperties`."""
+    """``mass_properties`` of docs/CONVENTIONS.md §6 from :class:`bladesolid.api.MassProperties`."""
     return {
         "mass_kg": props.mass_kg,
         "volume_m3": props.volume_m3,
@@ -119,7 +119,7 @@ def base_report(blade) -> dict:
 
 
 def blade_angle_section(blade) -> dict:
-    """``blade_angle`` of CONVENTIONS §6."""
+    """``blade_angle`` of docs/CONVENTIONS.md §6."""
     a = blade.modelled_angle
     return {
         "reference_radius_m": blade.reference_radius_m,

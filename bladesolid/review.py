@@ -65,7 +65,7 @@ class _Clock:
 
 def rpm_sweep_rows(blade, ops, rpm_range) -> list[dict]:
     """CTM, radial pull and pitch stiffness over speed at the first operating point's blade
-    angle: each is Ω² times its value at Ω = 1 rad/s (CONVENTIONS §4)."""
+    angle: each is Ω² times its value at Ω = 1 rad/s (docs/CONVENTIONS.md §4)."""
     from . import api
     from .job import range_points
 

@@ -2,7 +2,7 @@
 classical strip estimate of the CTM.
 
 At each station radius ``r`` the solid is cut by the plane ``y = r`` of the hub frame (normal to
-the pitch axis ``e``, CONVENTIONS §1). Every tetrahedral mass element the plane crosses is clipped
+the pitch axis ``e``, docs/CONVENTIONS.md §1). Every tetrahedral mass element the plane crosses is clipped
 and its outboard part integrated in closed form; no element is counted whole or dropped whole:
 
 * one vertex outboard — the outboard part is a small tetrahedron;
@@ -178,7 +178,7 @@ def triangle_area_moments(tri_xz: np.ndarray) -> np.ndarray:
     """Exact area moments of plane triangles (q, 3, 2): columns ∫dA, ∫x, ∫z, ∫x², ∫xz, ∫z².
 
     ∫ s dA = A (p0+p1+p2)/3;  ∫ s sᵀ dA = A/12 (Σ p pᵀ + (Σ p)(Σ p)ᵀ) (the plane case of the
-    simplex formula of CONVENTIONS §3).
+    simplex formula of docs/CONVENTIONS.md §3).
 
     >>> triangle_area_moments(np.array([[[0., 0], [1, 0], [0, 1]]]))[0].round(6).tolist()
     [0.5, 0.166667, 0.166667, 0.083333, 0.041667, 0.083333]
@@ -543,7 +543,7 @@ def _num(x):
 
 
 def spanwise_rows(table: SpanTable, flat: bool = False) -> list[dict]:
-    """The ``spanwise`` rows of the JSON report (CONVENTIONS §6), one per station, inboard first.
+    """The ``spanwise`` rows of the JSON report (docs/CONVENTIONS.md §6), one per station, inboard first.
 
     Keys: radius_m, area_m2, mass_outboard_kg, cf_outboard_N (tension F·e), ctm_outboard_Nm,
     stress_Pa, margin_of_safety (centrifugal part only; null without an allowable),

@@ -101,8 +101,8 @@ def test_scanned_transform_is_recovered(scanned):
     known[:3, 3] *= 1e-3
     expected = compare.invert_rigid(known)
     T = scanned.transform_model
-    assert compare.rotation_angle_deg(T[:3, :3] @ expected[:3, :3].T) < 0.05          # brief: < 0.05 deg
-    assert np.linalg.norm(T[:3, 3] - expected[:3, 3]) < 0.05e-3                       # brief: < 0.05 mm
+    assert compare.rotation_angle_deg(T[:3, :3] @ expected[:3, :3].T) < 0.05          # registration accuracy target of this project: < 0.05 deg
+    assert np.linalg.norm(T[:3, 3] - expected[:3, 3]) < 0.05e-3                       # registration accuracy target of this project: < 0.05 mm
     r = scanned.registration
     assert r.method == "principal axes + trimmed ICP"
     assert r.rms_m < 1e-6 and r.max_m < 1e-5        # float32 STL round-off only on the untouched 90 %
@@ -164,7 +164,7 @@ def test_blend_volumes_and_deviation(blend_direct):
 
 def test_comparison_section_has_the_contract_keys(scanned):
     s = compare.comparison_section(scanned)
-    # CONVENTIONS §7 keys
+    # docs/CONVENTIONS.md §7 keys
     assert set(s["registration"]) >= {"rms_m", "max_m", "transform"}
     assert np.asarray(s["registration"]["transform"]).shape == (4, 4)
     assert {"removed_volume_m3", "added_volume_m3", "delta", "verdict", "reasons"} <= set(s)
@@ -185,7 +185,7 @@ def test_tip_dressing_removed_volume_and_loads(reference, dressed):
     assert dressed.added_volume_m3 < 1e-3 * removed_known
     assert dressed.delta.radial_pull_N < 0                                            # lighter tip, less pull
     # the removed tip piece on its own: manifold3d boolean + trimesh mass properties (reference
-    # libraries), then the CONVENTIONS §4 formulas on those moments
+    # libraries), then the docs/CONVENTIONS.md §4 formulas on those moments
     a = compare._manifold(reference.surfaces, "ref")
     b = compare._manifold(_surfaces("demo_blade_tip_dressed.stl"), "dressed")
     g = (a - b).to_mesh64()

@@ -39,7 +39,7 @@ def _section_points(mesh: trimesh.Trimesh, y: float) -> np.ndarray:
 
 def _chord(points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """(leading edge, trailing edge): the two section points farthest apart, the leading edge
-    being the one facing t = k x e = -x (CONVENTIONS §2)."""
+    being the one facing t = k x e = -x (docs/CONVENTIONS.md §2)."""
     diff = points[:, None, :] - points[None, :, :]
     i, j = np.unravel_index(np.argmax(np.einsum("ijk,ijk->ij", diff, diff)), diff.shape[:2])
     a, b = points[i], points[j]

@@ -141,7 +141,7 @@ def test_unmeshed_blade_is_refused(demo):
 
 
 def test_flat_plate_at_45deg_closed_form_per_element(plate):
-    # CONVENTIONS §4: a thin flat blade gives CTM = −(Ω²/2) sin 2β (J_cc − J_nn). The same
+    # docs/CONVENTIONS.md §4: a thin flat blade gives CTM = −(Ω²/2) sin 2β (J_cc − J_nn). The same
     # algebra holds per element: a point at chordwise s and thickness-wise u from the pitch axis
     # at blade angle β has x z = −(s² − u²) sin β cos β + s u (sin²β − cos²β), so at 45° each
     # element contributes −(Ω²/2)(∫s² dm − ∫u² dm) exactly. The plate is modelled at 0° with
@@ -169,7 +169,7 @@ def test_flat_plate_at_45deg_closed_form_per_element(plate):
 
 
 def test_flat_plate_at_0_and_90_deg_has_no_total_ctm(plate):
-    # CONVENTIONS §4: zero at 0° and 90°. Per element the cross term s u remains; it cancels
+    # docs/CONVENTIONS.md §4: zero at 0° and 90°. Per element the cross term s u remains; it cancels
     # over the plate, which is symmetric about its mid-thickness plane (the elements fill the
     # surface exactly, so the cancellation is to round-off).
     for beta in (0.0, 90.0):

@@ -2,7 +2,7 @@
 
 The corpus is generated here, in tmp_path. Each bad input goes through the real entry point
 (``bladesolid.cli.main``; a few through ``python -m bladesolid`` in a subprocess) with
-``--json out.json``. The contract (CONVENTIONS §7): exit status 2, ONE line on stderr naming
+``--json out.json``. The contract (docs/CONVENTIONS.md §7): exit status 2, ONE line on stderr naming
 the file and the problem, no traceback, no output file and no ``*.part`` temporary file left
 in the folder, in bounded time and memory.
 

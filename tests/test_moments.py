@@ -39,7 +39,7 @@ def test_tonon_worked_example_about_centroid():
     assert S[1, 2] == pytest.approx(4417.66150, rel=1e-7)
     assert S[0, 2] == pytest.approx(-46343.16662, rel=1e-7)
     assert S[0, 1] == pytest.approx(11996.20119, rel=1e-7)
-    # the inertia tensor carries the products with a minus sign (CONVENTIONS §3)
+    # the inertia tensor carries the products with a minus sign (docs/CONVENTIONS.md §3)
     assert I[1, 2] == pytest.approx(-4417.66150, rel=1e-7)
 
 
@@ -124,7 +124,7 @@ def test_surface_route_matches_trimesh_on_demo_blade(demo_mesh):
 
 
 def test_demo_blade_elements_fill_the_surface_exactly(demo_mesh):
-    # issue requirement: element volumes add up to the closed-surface volume to <= 1e-9 relative
+    # the project's exactness target: element volumes add up to the closed-surface volume to <= 1e-9 relative
     nodes, tets = tetrahedralise_surface(demo_mesh.vertices, demo_mesh.faces)
     el = tet_volume_moments(nodes, tets)
     surf = surface_volume_moments(demo_mesh.vertices, demo_mesh.faces)

@@ -1,7 +1,7 @@
 """Safe outputs: every file is written atomically, nothing existing is overwritten without
 --force, and an interrupted write leaves neither a half file nor a temporary file.
 
-CONVENTIONS §7: "no partial output file left behind". The writers are
+docs/CONVENTIONS.md §7: "no partial output file left behind". The writers are
 ``report.atomic_write_bytes`` / ``atomic_write_text`` (temporary file in the same folder, then
 ``os.replace``, which is atomic on POSIX — rename(2), from memory) and ``report.staged_folder``
 (a temporary sibling folder moved into place at the end).

@@ -250,7 +250,7 @@ C0, C1, THICK, Y0, Y1 = 5 / 16, 5 / 32, 5 / 256, 0.25, 1.0
 def test_tapered_plate_closed_form(tmp_path, rotation):
     # Flat plate, constant thickness t, chord c(y) linear, centroid on the pitch axis, at blade
     # angle θ. Rectangle section: A = c t, I1 = t c³/12, I2 = c t³/12 (b h³/12, any handbook);
-    # outboard CTM = −(ρΩ²/2) sin 2θ ∫ (I1 − I2) dy, the thin-blade CTM of CONVENTIONS §4
+    # outboard CTM = −(ρΩ²/2) sin 2θ ∫ (I1 − I2) dy, the thin-blade CTM of docs/CONVENTIONS.md §4
     # (classical propeller mechanics, W. C. Nelson, "Airplane Propeller Principles", Wiley 1944 —
     # from memory), exact here because every section centroid lies on the pitch axis.
     frame = hub_frame(rotation=rotation)
@@ -282,7 +282,7 @@ def test_tapered_plate_closed_form(tmp_path, rotation):
     k = -(RHO * OMEGA**2 / 2) * math.sin(math.radians(2 * th))
     ctm = k * (dI(y1) - dI(radii))
     np.testing.assert_allclose(T.ctm_outboard_Nm, ctm, rtol=1e-10)
-    assert np.all(T.ctm_outboard_Nm < 0)  # toward fine at 0 < β < 90 (CONVENTIONS §4)
+    assert np.all(T.ctm_outboard_Nm < 0)  # toward fine at 0 < β < 90 (docs/CONVENTIONS.md §4)
     # bending about the section principal axes vanishes by symmetry (centroids on the axis)
     assert np.all(np.abs(T.bending_principal_1_Nm) < 1e-9 * abs(ctm[0]))
     assert np.all(np.abs(T.bending_principal_2_Nm) < 1e-9 * abs(ctm[0]))
