@@ -184,9 +184,7 @@ def _weld(vertices: np.ndarray, faces: np.ndarray, tol: float):
     from scipy.spatial import cKDTree
 
     n = len(vertices)
-    pairs = cKDTree(vertices).query_pairs(tol, output_type="ndarray") if tol > 0 else np.zeros((0, 2), int)
-    exact = _exact_duplicate_pairs(vertices)
-    pairs = np.concatenate([pairs.reshape(-1, 2), exact]) if len(exact) else pairs.reshape(-1, 2)
+    pairs = cKDTree(vertices).query_pairs(max(tol, 0.0), output_type="ndarray").reshape(-1, 2)
     if not len(pairs):
         return vertices, faces, np.zeros(n, dtype=bool)
     g = coo_matrix((np.ones(len(pairs)), (pairs[:, 0], pairs[:, 1])), shape=(n, n))
@@ -195,14 +193,6 @@ def _weld(vertices: np.ndarray, faces: np.ndarray, tol: float):
     np.minimum.at(first, lab, np.arange(n))
     rep = first[lab]
     return vertices, rep[faces], rep != np.arange(n)
-
-
-def _exact_duplicate_pairs(v):
-    _, inv = np.unique(v + 0.0, axis=0, return_inverse=True)
-    inv = inv.ravel()
-    order = np.argsort(inv, kind="stable")
-    same = inv[order][1:] == inv[order][:-1]
-    return np.column_stack([order[:-1][same], order[1:][same]])
 
 
 def _weld_step(v, f, tol, repairs, u):
@@ -222,7 +212,7 @@ def _drop_bad_faces(v, f, repairs):
                               tuple(v[f[repeated]].reshape(-1, 3).mean(axis=0)), faces_removed=int(repeated.sum())))
         f = f[~repeated]
     key = np.sort(f, axis=1)
-    _, inv, counts = np.unique(key, axis=0, return_inverse=True, return_counts=True)
+    _, inv, counts = np.unique(_row_keys(key), return_inverse=True, return_counts=True)
     inv = inv.ravel()
     if (counts == 1).all():
         return f
@@ -248,6 +238,18 @@ def _drop_bad_faces(v, f, repairs):
     return f[keep]
 
 
+def _row_keys(rows: np.ndarray) -> np.ndarray:
+    """One sortable key per row of non-negative integers (rows equal ⇔ keys equal)."""
+    rows = np.ascontiguousarray(rows, dtype=np.int64)
+    base = int(rows.max()) + 1 if rows.size else 1
+    if base ** rows.shape[1] < 2**62:
+        key = np.zeros(len(rows), dtype=np.int64)
+        for c in range(rows.shape[1]):
+            key = key * base + rows[:, c]
+        return key
+    return rows.view(np.dtype((np.void, rows.dtype.itemsize * rows.shape[1]))).ravel()
+
+
 def _centre(v, faces):
     return tuple(v[np.asarray(faces).ravel()].mean(axis=0))
 
@@ -264,7 +266,7 @@ def _winding_parity(f, key):
 def _fix_winding(v, f, repairs):
     """Faces wound against their neighbours turned round (trimesh's ``fix_winding``)."""
     a, b = f.ravel(), f[:, [1, 2, 0]].ravel()
-    directed = np.unique(np.column_stack([a, b]), axis=0, return_counts=True)[1]
+    directed = np.unique(_row_keys(np.column_stack([a, b])), return_counts=True)[1]
     if (directed == 1).all():
         return f
     import trimesh
