@@ -149,7 +149,7 @@ def repair_surface(
     v, f = _weld_step(v, f, diag * WELD_TOL_REL if weld_tol is None else float(weld_tol), repairs, u)
     f = _drop_bad_faces(v, f, repairs)
     f = _fix_winding(v, f, repairs)
-    v, f = _unfold_planar_regions(v, f, diag, repairs, u)
+    v, f = _unfold_planar_regions(v, f, diag, repairs, u, source)
     v, f = _fill_holes(v, f, repairs, u)
     f = _orient_shells(v, f, repairs)
     v, f = _unite_overlaps(v, f, diag, repairs, u, source)
@@ -315,7 +315,7 @@ def _orient_shells(v, f, repairs):
     return f
 
 
-def _unfold_planar_regions(v, f, diag, repairs, u):
+def _unfold_planar_regions(v, f, diag, repairs, u, source):
     """Take out flat regions that fold over themselves and triangulate their outline."""
     import trimesh
 
@@ -339,36 +339,86 @@ def _unfold_planar_regions(v, f, diag, repairs, u):
     g = coo_matrix((np.ones(len(a)), (a[:, 0], a[:, 1])), shape=(len(f), len(f)))
     _, lab = connected_components(g, directed=False)
     folded_labels = np.unique(lab[adj[flat & (dots < 0), 0]])
-    remove = np.isin(lab, folded_labels)
-    before = _volume(v, f)
-    kept = f[~remove]
-    new_faces, new_vertices = [], [v]
-    count = len(v)
+    new_faces = []
     for L in folded_labels:
         region = f[lab == L]
-        added = 0
-        for loop in _boundary_loops(region):  # the patch runs the outline as the region did
-            tri, extra = _triangulate_loop(np.concatenate(new_vertices), loop, count)
-            if extra is not None:
-                new_vertices.append(extra)
-                count += len(extra)
-            new_faces.append(tri)
-            added += len(tri)
+        where = v[np.unique(region)].mean(axis=0)
+        tri = _triangulate_flat(v, _boundary_loops(region))  # runs the outline as the region did
+        if tri is None:
+            raise InputError(
+                source,
+                f"a flat region of {len(region)} faces folds over itself at {_fmt(where)}{u} and its outline "
+                "could not be triangulated; mend it in a CAD or scan tool",
+            )
+        new_faces.append(tri)
+        dv = _signed_contribution(v, tri, where) - _signed_contribution(v, region, where)
+        if abs(dv) <= 1e-12 * abs(_signed_contribution(v, region, where)) + 1e-15 * diag**3:
+            dv = 0.0  # a flat fold: the same volume to round-off
         repairs.append(Repair(
             f"re-triangulated a flat region of {len(region)} faces that folded over itself "
             "(a cap fanned from a point about which its outline is not star-shaped)",
-            tuple(v[np.unique(region)].mean(axis=0)), faces_added=added, faces_removed=len(region),
+            tuple(where), faces_added=len(tri), faces_removed=len(region),
+            volume_added=max(dv, 0.0), volume_removed=max(-dv, 0.0),
         ))
-    v2 = np.concatenate(new_vertices)
-    f2 = np.concatenate([kept] + new_faces) if new_faces else kept
-    dv = _volume(v2, f2) - before if _is_closed(f2) and _is_closed(f) else 0.0
-    if abs(dv) <= 1e-12 * abs(before):  # a flat fold: the same volume to round-off
-        dv = 0.0
-    if dv and repairs:
-        last = repairs[-1]
-        repairs[-1] = Repair(last.what, last.where, last.faces_added, last.faces_removed,
-                             max(dv, 0.0), max(-dv, 0.0))
-    return v2, f2
+    kept = f[~np.isin(lab, folded_labels)]
+    return v, np.concatenate([kept] + new_faces)
+
+
+def _signed_contribution(v, faces, ref):
+    """Σ signed volume of the tetrahedra (ref, face): the faces' share of an enclosed volume."""
+    t = v[faces] - ref
+    return float(np.einsum("ij,ij->i", t[:, 0], np.cross(t[:, 1], t[:, 2])).sum() / 6.0)
+
+
+def _triangulate_flat(v, loops):
+    """Triangles of a flat outline with holes (loops in the order the patch runs them; the
+    largest is the outline), without new vertices: constrained Delaunay (shapely/GEOS).
+    None when the projected outline is not a valid polygon."""
+    import shapely
+
+    if not loops:
+        return None
+    pts_all = v[np.concatenate(loops)]
+    c, normal, e1, e2 = _plane(pts_all)
+
+    def xy(loop):
+        p = v[loop] - c
+        return np.column_stack([p @ e1, p @ e2])
+
+    areas = [_area2(xy(loop)) for loop in loops]
+    k = int(np.argmax(np.abs(areas)))
+    if areas[k] < 0:  # axes chosen so that the outline runs counter-clockwise
+        e2 = -e2
+    rings = [xy(loop) for loop in loops]
+    outer = rings[k]
+    holes = [r for i, r in enumerate(rings) if i != k]
+    index = {}
+    for r, loop in zip(rings, loops):
+        for p, i in zip(r.tolist(), loop.tolist()):
+            if tuple(p) in index and index[tuple(p)] != i:
+                return None  # two corners project onto one point
+            index[tuple(p)] = i
+    poly = shapely.Polygon(outer, holes)
+    if not poly.is_valid:
+        return None
+    try:
+        parts = shapely.get_parts(shapely.constrained_delaunay_triangles(poly))
+        tri = np.array([[index[tuple(q)] for q in shapely.get_coordinates(t)[:3].tolist()] for t in parts],
+                       dtype=np.int64).reshape(-1, 3)
+    except (KeyError, shapely.errors.GEOSException):
+        return None
+    n_points = sum(len(loop) for loop in loops)
+    if len(tri) != n_points + 2 * len(holes) - 2:  # Euler: a plain triangulation of the outline
+        return None
+    q = np.stack([np.column_stack([(v[tri[:, j]] - c) @ e1, (v[tri[:, j]] - c) @ e2]) for j in range(3)], 1)
+    s = np.cross(q[:, 1] - q[:, 0], q[:, 2] - q[:, 0])
+    tri[s < 0] = tri[s < 0][:, [0, 2, 1]]
+    return tri
+
+
+def _area2(xy):
+    """Signed area of a closed polygon (shoelace)."""
+    return 0.5 * float(np.sum(xy[:, 0] * np.roll(xy[:, 1], -1) - np.roll(xy[:, 0], -1) * xy[:, 1]))
 
 
 def _fill_holes(v, f, repairs, u):
@@ -530,42 +580,15 @@ def _plane(points):
 
 
 def _triangulate_loop(v, loop, next_index):
-    """Triangles closing ``loop`` (vertex indices in the order the patch must run them).
-    Returns (triangles (t, 3), new vertices (0 or 1, 3) or None)."""
-    import shapely
-
-    pts = v[loop]
-    c, normal, e1, e2 = _plane(pts)
-    xy = np.column_stack([(pts - c) @ e1, (pts - c) @ e2])
-    area2 = 0.5 * np.sum(xy[:, 0] * np.roll(xy[:, 1], -1) - np.roll(xy[:, 0], -1) * xy[:, 1])
-    if area2 < 0:  # axes chosen so that the patch's own order is counter-clockwise
-        e2, normal = -e2, -normal
-        xy[:, 1] = -xy[:, 1]
-    tri = None
-    poly = shapely.Polygon(xy)
-    if len(loop) == 3:
-        tri = loop[None, :].copy()
-    elif poly.is_valid and len({tuple(p) for p in xy.tolist()}) == len(loop):
-        index = {tuple(p): int(i) for p, i in zip(xy.tolist(), loop)}
-        try:
-            parts = shapely.get_parts(shapely.constrained_delaunay_triangles(poly))
-            rows = [[index[tuple(q)] for q in shapely.get_coordinates(t)[:3].tolist()] for t in parts]
-            tri = np.array(rows, dtype=np.int64).reshape(-1, 3)
-        except (KeyError, shapely.errors.GEOSException):
-            tri = None
-        if tri is not None:
-            # orient every triangle like the outline (counter-clockwise in the plane's axes)
-            q = np.stack([np.column_stack([(v[tri[:, k]] - c) @ e1, (v[tri[:, k]] - c) @ e2]) for k in range(3)], 1)
-            s = np.cross(q[:, 1] - q[:, 0], q[:, 2] - q[:, 0])
-            tri[s < 0] = tri[s < 0][:, [0, 2, 1]]
-            if len(tri) != len(loop) - 2:  # not a plain triangulation of the outline
-                tri = None
+    """Triangles closing ``loop`` (vertex indices in the order the patch must run them):
+    triangulated in its best-fitting plane when it projects to a simple polygon, else fanned
+    from its centroid. Returns (triangles (t, 3), new vertices (1, 3) or None)."""
+    tri = loop[None, :].copy() if len(loop) == 3 else _triangulate_flat(v, [loop])
     if tri is not None:
         return tri, None
-    centre = pts.mean(axis=0)
     i = np.arange(len(loop))
     fan = np.column_stack([np.full(len(loop), next_index), loop[i], loop[(i + 1) % len(loop)]])
-    return fan, centre[None]
+    return fan, v[loop].mean(axis=0)[None]
 
 
 def _patch_volume(v, tri, loop_pts):

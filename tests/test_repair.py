@@ -233,3 +233,35 @@ def test_flipped_faces_and_an_inside_out_shell_are_turned_round():
     whats = [x.what for x in r.repairs]
     assert whats == ["turned 2 faces wound against their neighbours",
                      "turned a closed shell of 12 faces that was wound inside out"]
+
+
+def test_a_folded_flat_face_with_a_hole_in_it_keeps_its_hole():
+    """The flat top of a tube, where one quad was replaced by a fan from a point outside it
+    (a fold): the whole top is re-triangulated as an annulus, the bore stays open, and the
+    volume is the tube's (trimesh's annulus; Green's theorem for the flat fold — from memory)."""
+    tube = trimesh.creation.annulus(r_min=0.3, r_max=0.5, height=0.2, sections=24)
+    v, f = np.asarray(tube.vertices), np.asarray(tube.faces, dtype=np.int64)
+    top = np.flatnonzero(np.isclose(v[f][:, :, 2], 0.1).all(axis=1))
+    m = trimesh.Trimesh(v, f, process=False)
+    t0 = top[0]
+    t1 = next(int(a + b - t0) for a, b in m.face_adjacency.tolist() if t0 in (a, b) and a + b - t0 in top)
+    quad = trimesh.Trimesh(v, f[[t0, t1]], process=False)
+    outline = quad.outline().entities[0].points[:-1]  # the quad's boundary, in order
+    if trimesh.Trimesh(v, f[[t0]], process=False).face_normals[0, 2] * np.cross(
+            v[outline[1]] - v[outline[0]], v[outline[2]] - v[outline[1]])[2] < 0:
+        outline = outline[::-1]
+    centre = v[outline].mean(axis=0)
+    p = centre + 3.0 * np.array([centre[0], centre[1], 0.0])  # in the plane, outside the quad
+    k = len(v)
+    fan = np.array([[k, outline[i], outline[(i + 1) % 4]] for i in range(4)])
+    v2 = np.vstack([v, p])
+    f2 = np.vstack([np.delete(f, [t0, t1], axis=0), fan])
+    assert trimesh.Trimesh(v2, f2, process=False).is_winding_consistent
+    r = repair_surface(v2, f2)
+    assert_sound(r.vertices, r.faces)
+    assert r.volume == pytest.approx(tube.volume, rel=1e-12)
+    (rec,) = r.repairs
+    assert rec.what.startswith("re-triangulated a flat region") and rec.faces_removed == len(top) + 2
+    assert rec.faces_added == len(top)  # an annulus of 2×24 corners: 48 triangles, no new vertex
+    # the bore is still there: a point on the axis is outside the solid
+    assert not trimesh.Trimesh(r.vertices, r.faces, process=False).contains([[0.0, 0.0, 0.0]])[0]
