@@ -86,6 +86,8 @@ def private_tmp(tmp_path, monkeypatch):
 @pytest.mark.parametrize("isolation", ISOLATIONS)
 def test_a_crash_in_the_child_is_one_input_error_and_the_caller_goes_on(private_tmp, isolation):
     box = trimesh.creation.box()
+    grid = trimesh.creation.box().subdivide().subdivide()
+    tet_volume_moments(*mesh.tetrahedralise_surface(grid.vertices, grid.faces))  # numba's threads up here first
     with pytest.raises(InputError) as info:
         mesh.run_tetgen(box.vertices, box.faces, "pYQO0", source="blade.stl", isolation=isolation, _fault="abort")
     msg = str(info.value)
