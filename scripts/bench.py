@@ -23,6 +23,10 @@ Rows:
    elements.
 5. the ``mass`` command on a 240 000-face STL, whole process (median of several runs), against
    a bare trimesh script that loads the file and prints its mass. Target: <= 2x.
+6. the cost of running TetGen isolated in a child process (``mesh.run_tetgen``) on the demo
+   blade, rounds interleaved: unprotected in this process, a forked child (the default on
+   Linux), a fresh ``python -m bladesolid.mesh`` interpreter with ``.npy`` files (the fallback),
+   each after numba's thread pool is up in the parent. Target: fork within 15 % of unprotected.
 
 numba kernels are compiled (or loaded from the on-disk cache) before any timing. Times are
 medians of repeats; wall clock (``time.perf_counter``).
@@ -345,6 +349,33 @@ def bench_mass_command(folder, repeats):
         t_ours / t_bare <= 2.0)
 
 
+# --------------------------------------------------------------------------- 6. isolation
+
+
+def bench_isolation(rounds):
+    print(f"[6] TetGen isolation, demo blade, {rounds} interleaved rounds", flush=True)
+    import trimesh
+
+    from bladesolid import mesh
+    from bladesolid.moments import tet_volume_moments
+
+    m = trimesh.load(DEMO, force="mesh")
+    v, f = np.asarray(m.vertices) * 1e-3, np.asarray(m.faces)
+    tet_volume_moments(*mesh.tetrahedralise_surface(v, f))  # numba's threads up in the parent
+    times = {k: [] for k in mesh.ISOLATIONS}
+    for _ in range(rounds):
+        for k in ("inline", "fork", "spawn"):
+            t0 = time.perf_counter()
+            mesh.tetrahedralise_surface(v, f, isolation=k)
+            times[k].append(time.perf_counter() - t0)
+    base = statistics.median(times["inline"])
+    for k in ("fork", "spawn"):
+        t = statistics.median(times[k])
+        row("6 isolation", f"TetGen on the demo blade ({len(f):,} faces), {k}ed child", f"{t:.3f} s",
+            f"in this process {base:.3f} s", f"{t / base:.2f}x", "<= 1.15x" if k == "fork" else "",
+            (t / base <= 1.15) if k == "fork" else None)
+
+
 # --------------------------------------------------------------------------- main
 
 
@@ -357,7 +388,7 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="smaller sizes (smoke test, not the figures)")
     ap.add_argument("--markdown", metavar="FILE", help="also write the table here")
-    ap.add_argument("--skip", default="", help="comma-separated sections to skip: kernel,surface,sweep,check,growth,mass")
+    ap.add_argument("--skip", default="", help="comma-separated sections to skip: kernel,surface,sweep,check,growth,mass,isolation")
     args = ap.parse_args(argv)
     skip = set(filter(None, args.skip.split(",")))
     t0 = time.perf_counter()
@@ -381,6 +412,8 @@ def main(argv=None) -> int:
             bench_growth(folder, [10_000, 100_000] if args.quick else [10_000, 100_000, 1_000_000])
         if "mass" not in skip:
             bench_mass_command(folder, 2 if args.quick else 5)
+        if "isolation" not in skip:
+            bench_isolation(3 if args.quick else 7)
     text = markdown()
     print()
     print(text)
