@@ -256,9 +256,9 @@ def test_tapered_plate_closed_form(tmp_path, rotation):
     frame = hub_frame(rotation=rotation)
     c0, c1, t, y0, y1 = C0, C1, THICK, Y0, Y1
     blade = _load(tmp_path, _plate(frame, c0, c1, t, y0, y1), "plate.stl", frame=frame)
-    # the modelled angle is measured on the chord: the diagonal of the reference section
-    c_ref = c0 + (c1 - c0) * (blade.reference_radius_m - y0) / (y1 - y0)
-    assert abs(blade.modelled_deg - THETA) == pytest.approx(math.degrees(math.atan(t / c_ref)), abs=1e-9)
+    # the modelled angle is measured on the nose-to-tail chord: from the middle of one square edge
+    # to the middle of the other, the plate's own direction (docs/CONVENTIONS.md §2)
+    assert blade.modelled_deg == pytest.approx(THETA, abs=1e-9)
     radii = np.linspace(y0 + 1e-4, y1 - 1e-4, 41)
     beta = 40.0
     T = span_table(blade, RPM, blade_angle_deg=beta, stations=radii)
@@ -269,11 +269,11 @@ def test_tapered_plate_closed_form(tmp_path, rotation):
     np.testing.assert_allclose(T.I1_m4, t * c**3 / 12, rtol=1e-10)
     np.testing.assert_allclose(T.I2_m4, c * t**3 / 12, rtol=1e-9)
     np.testing.assert_allclose(T.principal_angle_deg, th, atol=1e-9)
-    d = np.hypot(c, t)  # farthest-apart points of a rectangle: the diagonal (elementary geometry)
-    np.testing.assert_allclose(T.chord_m, d, rtol=1e-11)
-    np.testing.assert_allclose(T.thickness_m, 2 * c * t / d, rtol=1e-9)
-    # the chord (diagonal) is off the principal direction by ± atan(t/c)
-    np.testing.assert_allclose(np.abs(T.local_blade_angle_deg - th), np.degrees(np.arctan(t / c)), atol=1e-9)
+    # a rectangle's nose-to-tail chord is its length c, its thickness normal to it t, and its local
+    # blade angle that of the plate itself, the header's reading (elementary geometry)
+    np.testing.assert_allclose(T.chord_m, c, rtol=1e-11)
+    np.testing.assert_allclose(T.thickness_m, t, rtol=1e-9)
+    np.testing.assert_allclose(T.local_blade_angle_deg, th, atol=1e-9)
     mass = RHO * t * (cpoly.integ()(y1) - cpoly.integ()(radii))
     np.testing.assert_allclose(T.mass_outboard_kg, mass, rtol=1e-11)
     yc = (cpoly * np.polynomial.Polynomial([0, 1])).integ()
