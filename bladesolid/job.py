@@ -43,7 +43,8 @@ sweep = "-10:90:1"                     # blade-angle range of the CTM sweep, deg
 rpm_sweep = "0:3000:100"               # speed range of the speed sweep, rpm FROM:TO:STEP
 stations = 16                          # spanwise stations: a count, or a list of radii
 # allowable = "240 MPa"                # material allowable for the centrifugal margin of safety
-proof_factor = 2.0                     # centrifugal proof load = factor x largest radial pull
+proof_factor = 2.0                     # centrifugal proof load = factor x radial pull at rated_rpm
+rated_rpm = 2500                       # maximum rated speed (default: the highest operating point)
 
 [[operating_point]]                    # the first one is used for sweeps and spanwise tables
 name = "take-off"
@@ -90,6 +91,7 @@ KEYS: dict[str, tuple[str, str]] = {
     "stations": ("stations", "--stations"),
     "allowable": ("quantity", "--allowable"),
     "proof_factor": ("float", "--proof-factor"),
+    "rated_rpm": ("float", "--rated-rpm"),
     "angle_line": ("str", "--angle-line"),
     "elements": ("int", "--elements"),
     "element_size": ("float", "--element-size"),
@@ -153,6 +155,7 @@ class Job:
     stations: object = 16  # int count, or tuple of radii in m
     allowable_Pa: float | None = None
     proof_factor: float = 2.0
+    rated_rpm: float | None = None
     angle_line: str = "chord"
     elements: int | None = None
     element_size_m: float | None = None
@@ -410,6 +413,9 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
     proof = opt_num("proof_factor")
     if proof is not None and proof <= 0:
         raise InputError(w("proof_factor"), f"must be positive, got {proof}")
+    rated_rpm = opt_num("rated_rpm")
+    if rated_rpm is not None and rated_rpm <= 0:
+        raise InputError(w("rated_rpm"), f"must be a positive speed in rpm, got {rated_rpm}")
     angle_line = merged.get("angle_line", "chord")
     if angle_line not in ("chord", "face"):
         raise InputError(w("angle_line"), f"must be \"chord\" or \"face\", got {angle_line!r}")
@@ -491,6 +497,7 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
         stations=stations,
         allowable_Pa=allowable,
         proof_factor=proof if proof is not None else 2.0,
+        rated_rpm=rated_rpm,
         angle_line=angle_line,
         elements=elements,
         element_size_m=element_size * scale if element_size is not None else None,
