@@ -295,6 +295,27 @@ def test_tapered_plate_closed_form(tmp_path, rotation):
     assert T.ctm_strip_outboard_Nm[0] == pytest.approx(ctm[0], rel=2e-3)
 
 
+@pytest.mark.parametrize("angle_line", ["chord", "face"])
+def test_square_edged_plate_at_zero_reads_zero_everywhere(tmp_path, angle_line):
+    # A 10 mm square-edged flat plate modelled at 0° (chord along t, face aft): at every station
+    # its thickness is 10 mm and its local blade angle 0°, on either reference line, the header's
+    # reading; set to 30° every station reads 30° (elementary geometry; docs/CONVENTIONS.md §2).
+    # The plate's corners are exact in the STL file's single precision (binary fractions).
+    plate = trimesh.creation.box([0.25, 0.75, 0.0078125])
+    plate.apply_translation([0.0, 0.625, 0.0])
+    path = tmp_path / "plate.stl"
+    plate.export(path)
+    blade = api.load_blade(path, "m", [f"{RHO} kg/m^3"], angle_line=angle_line)
+    assert blade.modelled_deg == 0.0 and blade.modelled_angle.reference_line == angle_line
+    radii = np.linspace(0.26, 0.99, 9)
+    T = span_table(blade, RPM, stations=radii)
+    np.testing.assert_allclose(T.thickness_m, 0.0078125, rtol=1e-12)
+    np.testing.assert_allclose(T.chord_m, 0.25, rtol=1e-12)
+    np.testing.assert_allclose(T.local_blade_angle_deg, 0.0, atol=1e-12)
+    T = span_table(blade, RPM, blade_angle_deg=30.0, stations=radii)
+    np.testing.assert_allclose(T.local_blade_angle_deg, 30.0, atol=1e-12)
+
+
 def test_two_bodies_area_weighted_density(tmp_path):
     # Two separate boxes of different densities: the solid figures use each body's own density;
     # the strip uses ρ = Σ ρ_i A_i / Σ A_i (area-weighted mean, definition).
