@@ -156,6 +156,7 @@ def load_blade(
     model_transform=None,
     field_faces: int | None = None,
     progress=None,
+    angle_line: str = "chord",
 ) -> Blade:
     """Load, validate, mesh and integrate a blade.
 
@@ -172,6 +173,8 @@ def load_blade(
     model_transform : optional 4x4 rigid transform (m) applied to the mesh on load, e.g. the
       registration that puts a scanned blade into its nominal's model frame
     progress : optional callable(stage: str) told when each stage starts
+    angle_line : the reference line of the modelled blade angle, ``"chord"`` (nose to tail) or
+      ``"face"`` (a straightedge on the face); both angles are kept (docs/CONVENTIONS.md §2)
 
     A flat bar 40 × 600 × 10 mm from r = 100 mm to 700 mm, aluminium, at 1000 rpm:
 
@@ -185,9 +188,11 @@ def load_blade(
     >>> round(op.radial_pull_N, 1), abs(op.ctm_Nm) < 1e-9   # m Ω² r_cg; no CTM flat in the plane
     (2842.4, True)
     """
+    from .frame import check_angle_line
     from .io import read_mesh
     from .moments import surface_volume_moments, tet_volume_moments
 
+    check_angle_line(angle_line)
     say = progress or (lambda stage: None)
     frame = frame or hub_frame()
     say("load")
@@ -217,7 +222,7 @@ def load_blade(
         reference_radius_m = reference_fraction * tip
     angle = None
     try:
-        angle = measure_blade_angle(surfaces, frame, reference_radius_m, source=str(path))
+        angle = measure_blade_angle(surfaces, frame, reference_radius_m, source=str(path), line=angle_line)
     except InputError as exc:
         warnings.append(f"blade angle not measured: {exc.problem}")
     el = nodes = tets = body_ix = None
@@ -464,6 +469,7 @@ def blade_from_job(job, *, elements: bool = True, model_transform=None, progress
         model_transform=model_transform,
         field_faces=job.field_faces,
         progress=progress,
+        angle_line=job.angle_line,
     )
     if job.pitch_point_m is not None:
         check_pitch_point(frame, blade.moments.cg, blade.tip_radius_m, f"{job.source}")

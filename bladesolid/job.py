@@ -33,16 +33,18 @@ hub_centre = [0.0, 0.0, 0.0]           # O, where the pitch axis meets the rotat
 thrust_axis = [0.0, 0.0, 1.0]          # k, rotation axis pointing forward
 pitch_axis = [0.0, 1.0, 0.0]           # e, outboard (unit vector)
 # pitch_point = [0.0, 0.0, 0.0]        # a point of the pitch axis when it is offset from O
-precone = 0.0                          # degrees, pitch axis forward of the plane of rotation
+precone = 0.0                          # degrees: the blade is coned tip forward about the hub's x axis
 rotation = "right"                     # right-handed about the thrust axis, or "left"
 
 reference_fraction = 0.75              # reference station for the blade angle (x tip radius)
+angle_line = "chord"                   # blade angle on the nose-to-tail "chord" or on the "face"
 # reference_radius = 750.0             # or an explicit radius along the pitch axis
 sweep = "-10:90:1"                     # blade-angle range of the CTM sweep, degrees FROM:TO:STEP
 rpm_sweep = "0:3000:100"               # speed range of the speed sweep, rpm FROM:TO:STEP
 stations = 16                          # spanwise stations: a count, or a list of radii
 # allowable = "240 MPa"                # material allowable for the centrifugal margin of safety
-proof_factor = 2.0                     # centrifugal proof load = factor x largest radial pull
+proof_factor = 2.0                     # centrifugal proof load = factor x radial pull at rated_rpm
+rated_rpm = 2500                       # maximum rated speed (default: the highest operating point)
 
 [[operating_point]]                    # the first one is used for sweeps and spanwise tables
 name = "take-off"
@@ -89,6 +91,8 @@ KEYS: dict[str, tuple[str, str]] = {
     "stations": ("stations", "--stations"),
     "allowable": ("quantity", "--allowable"),
     "proof_factor": ("float", "--proof-factor"),
+    "rated_rpm": ("float", "--rated-rpm"),
+    "angle_line": ("str", "--angle-line"),
     "elements": ("int", "--elements"),
     "element_size": ("float", "--element-size"),
     "field_faces": ("int", "--field-faces"),
@@ -151,6 +155,8 @@ class Job:
     stations: object = 16  # int count, or tuple of radii in m
     allowable_Pa: float | None = None
     proof_factor: float = 2.0
+    rated_rpm: float | None = None
+    angle_line: str = "chord"
     elements: int | None = None
     element_size_m: float | None = None
     field_faces: int | None = None
@@ -407,6 +413,12 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
     proof = opt_num("proof_factor")
     if proof is not None and proof <= 0:
         raise InputError(w("proof_factor"), f"must be positive, got {proof}")
+    rated_rpm = opt_num("rated_rpm")
+    if rated_rpm is not None and rated_rpm <= 0:
+        raise InputError(w("rated_rpm"), f"must be a positive speed in rpm, got {rated_rpm}")
+    angle_line = merged.get("angle_line", "chord")
+    if angle_line not in ("chord", "face"):
+        raise InputError(w("angle_line"), f"must be \"chord\" or \"face\", got {angle_line!r}")
     elements = opt_num("elements", integer=True)
     if elements is not None and not (1 <= elements <= 50_000_000):
         raise InputError(w("elements"), f"must be between 1 and 50 000 000, got {elements}")
@@ -485,6 +497,8 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
         stations=stations,
         allowable_Pa=allowable,
         proof_factor=proof if proof is not None else 2.0,
+        rated_rpm=rated_rpm,
+        angle_line=angle_line,
         elements=elements,
         element_size_m=element_size * scale if element_size is not None else None,
         field_faces=field_faces,

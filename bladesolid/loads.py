@@ -248,12 +248,61 @@ def operating_loads(m0: Moments, frame: HubFrame, modelled_deg: float, blade_ang
 # --- proof load and counterweights -------------------------------------------------------
 
 PROOF_FACTOR = 2.0
-PROOF_SOURCE = "14 CFR 35.35, centrifugal load test: twice the maximum centrifugal force (from memory)"
+PROOF_SOURCE = ("14 CFR 35.35, centrifugal load tests: the hub, blade retention and counterweights carry twice "
+                "the centrifugal force at the maximum rated rotational speed (from memory)")
 
 
-def proof_load(max_radial_pull_N: float, factor: float = PROOF_FACTOR) -> float:
-    """Centrifugal proof load, N: ``factor`` × the largest radial pull."""
-    return float(factor) * float(max_radial_pull_N)
+def proof_load(radial_pull_N: float, factor: float = PROOF_FACTOR) -> float:
+    """Centrifugal proof load, N: ``factor`` × the radial pull at the maximum rated speed."""
+    return float(factor) * float(radial_pull_N)
+
+
+@dataclass(frozen=True)
+class ProofLoad:
+    """Centrifugal proof load (docs/CONVENTIONS.md §4), N: ``factor`` × the radial pull at
+    ``rpm`` of everything that turns with the blade, split into its parts.
+
+    blade_angle_deg : the blade angle the pull is taken at (it depends on the blade angle only
+      through the precone, which tilts the rotation axis out of the plane normal to e)
+    """
+
+    factor: float
+    rpm: float
+    blade_angle_deg: float
+    radial_pull_solid_N: float
+    radial_pull_lumped_N: float
+    radial_pull_counterweight_N: float
+
+    @property
+    def radial_pull_N(self) -> float:
+        return self.radial_pull_solid_N + self.radial_pull_lumped_N + self.radial_pull_counterweight_N
+
+    @property
+    def proof_load_N(self) -> float:
+        return proof_load(self.radial_pull_N, self.factor)
+
+
+def proof_load_at(solid: Moments, lumped: Moments, frame: HubFrame, modelled_deg: float, blade_angle_deg: float,
+                  rpm: float, factor: float = PROOF_FACTOR, counterweight: Moments | None = None) -> ProofLoad:
+    """The proof load at the maximum rated speed ``rpm`` and a blade angle (deg): the solid,
+    the lumped masses and the counterweight (hub-frame moments at the modelled position; the
+    counterweight None when there is none), each turned to the blade angle with the blade.
+
+    A bar of 1 kg with its CG at 0.5 m, 1000 rpm, factor 2: 2 × m Ω² r
+    (m Ω² r: centripetal force of a point mass, any dynamics text).
+
+    >>> from bladesolid.frame import hub_frame
+    >>> p = proof_load_at(point_mass(1.0, [0, 0.5, 0]), point_mass(0.0, [0, 0, 0]), hub_frame(), 0.0, 20.0, 1000.0)
+    >>> round(p.proof_load_N, 6) == round(2 * 0.5 * (1000 * 2 * math.pi / 60) ** 2, 6)
+    True
+    """
+    omega = rpm_to_rad_s(rpm)
+    delta = blade_angle_deg - modelled_deg
+
+    def pull(m):
+        return 0.0 if m is None else float(radial_pull(moments_at_angle(m, frame, delta), frame, omega))
+
+    return ProofLoad(float(factor), float(rpm), float(blade_angle_deg), pull(solid), pull(lumped), pull(counterweight))
 
 
 @dataclass(frozen=True)

@@ -119,15 +119,29 @@ def base_report(blade) -> dict:
 
 
 def blade_angle_section(blade) -> dict:
-    """``blade_angle`` of docs/CONVENTIONS.md §6."""
+    """``blade_angle`` of docs/CONVENTIONS.md §6: ``modelled_deg`` on the chosen ``reference_line``
+    (``"chord"`` or ``"face"``), both angles and their difference whatever the choice, the chord
+    line's ends, the face line's ends (trailing-edge end first), the thickness normal to the
+    reference line and how the leading edge was told (docs/CONVENTIONS.md §2)."""
     a = blade.modelled_angle
+
+    def get(fn):
+        return None if a is None else fn(a)
+
     return {
         "reference_radius_m": blade.reference_radius_m,
-        "modelled_deg": None if a is None else a.angle_deg,
+        "modelled_deg": get(lambda a: a.angle_deg),
+        "reference_line": get(lambda a: a.reference_line),
+        "chord_deg": get(lambda a: a.chord_deg),
+        "face_deg": get(lambda a: a.face_deg),
+        "face_minus_chord_deg": get(lambda a: a.face_minus_chord_deg),
         "tip_radius_m": blade.tip_radius_m,
-        "chord_m": None if a is None else a.chord_m,
-        "leading_edge_m": None if a is None else a.leading_edge,
-        "trailing_edge_m": None if a is None else a.trailing_edge,
+        "chord_m": get(lambda a: a.chord_m),
+        "thickness_m": get(lambda a: a.thickness_m),
+        "leading_edge_m": get(lambda a: a.leading_edge),
+        "trailing_edge_m": get(lambda a: a.trailing_edge),
+        "face_line_m": get(lambda a: [a.face_trailing, a.face_leading]),
+        "leading_edge_from": get(lambda a: a.lead_from),
     }
 
 

@@ -179,7 +179,6 @@ def run_review(job, progress=None, *, with_views: bool = True) -> Review:
 def loads_report(blade, job, ops):
     """The report dict of the ``loads`` command (and the core of ``check``)."""
     from . import api, report
-    from .loads import PROOF_SOURCE, proof_load
 
     props = api.mass_properties(blade)
     data = report.base_report(blade)
@@ -200,15 +199,6 @@ def loads_report(blade, job, ops):
         "zero_ctm_blade_angles_deg": curve.zeros(-180.0, 180.0),
         "zero_ctm_in_sweep_deg": curve.zeros(lo, hi),
     }
-    biggest = max(ops, key=lambda o: o.radial_pull_N)
-    data["proof_load"] = {
-        "factor": job.proof_factor,
-        "source": PROOF_SOURCE,
-        "largest_radial_pull_N": biggest.radial_pull_N,
-        "at_operating_point": biggest.name,
-        "at_rpm": biggest.rpm,
-        "proof_load_N": proof_load(biggest.radial_pull_N, job.proof_factor),
-    }
     data["rotor"] = {
         "blades": job.blades,
         "polar_inertia_per_blade_kgm2": ops[0].polar_inertia_kgm2,
@@ -217,9 +207,60 @@ def loads_report(blade, job, ops):
     }
     if job.counterweight is not None:
         data["counterweight_sizing"] = counterweight_section(blade, job, ops[0])
+    data["proof_load"] = proof_load_section(blade, job, ops, data.get("counterweight_sizing"))
     if job.rpm_sweep is not None:
         data["rpm_sweep"] = rpm_sweep_rows(blade, ops, job.rpm_sweep)
     return data
+
+
+def proof_load_section(blade, job, ops, counterweight: dict | None = None) -> dict:
+    """``proof_load`` of the report (docs/CONVENTIONS.md §4): ``proof_factor`` × the radial pull at
+    the maximum rated speed (``rated_rpm``; without it the highest operating-point speed, and the
+    report says so) of everything that turns with the blade — the solid, the lumped masses and
+    the counterweight sized by the same job (``counterweight``: its ``counterweight_sizing``
+    section, or None) — at the first operating point's blade angle.
+
+    Keys: factor, source, basis (in words), basis_rpm, blade_angle_deg, includes_counterweight,
+    radial_pull_N and its parts radial_pull_solid_N / _lumped_N / _counterweight_N,
+    proof_load_N; largest_radial_pull_N, at_operating_point and at_rpm name the same pull and
+    speed as before (the pull the proof load is based on).
+    """
+    from .loads import PROOF_SOURCE, proof_load_at
+    from .moments import point_mass
+
+    op0 = ops[0]
+    if job.rated_rpm is not None:
+        rpm, at = float(job.rated_rpm), "rated speed"
+        basis = f"maximum rated speed (rated_rpm), {rpm:g} rpm"
+    else:
+        top = max(ops, key=lambda o: o.rpm)
+        rpm, at = float(top.rpm), top.name
+        basis = (f"highest operating-point speed, {rpm:g} rpm ({top.name}), as no maximum rated speed "
+                 "(rated_rpm) is given")
+    basis += (f"; at the first operating point's blade angle, {op0.blade_angle_deg:g} deg (the radial pull "
+              "depends on the blade angle only through the precone)")
+    cw = None
+    if counterweight is not None:
+        cw = point_mass(counterweight["mass_kg"], np.asarray(counterweight["position_hub_m"], dtype=float))
+        basis += "; the sized counterweight included"
+    p = proof_load_at(blade.solid_moments, blade.lumped_moments, blade.frame, blade.modelled_deg,
+                      op0.blade_angle_deg, rpm, job.proof_factor, counterweight=cw)
+    return {
+        "factor": job.proof_factor,
+        "source": PROOF_SOURCE,
+        "basis": basis,
+        "basis_rpm": rpm,
+        "blade_angle_deg": op0.blade_angle_deg,
+        "includes_counterweight": cw is not None,
+        "radial_pull_N": p.radial_pull_N,
+        "radial_pull_solid_N": p.radial_pull_solid_N,
+        "radial_pull_lumped_N": p.radial_pull_lumped_N,
+        "radial_pull_counterweight_N": p.radial_pull_counterweight_N,
+        "largest_radial_pull_N": p.radial_pull_N,
+        "at_operating_point": at,
+        "at_rpm": rpm,
+        "proof_load_N": p.proof_load_N,
+    }
 
 
 def counterweight_section(blade, job, op0):

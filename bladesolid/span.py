@@ -31,7 +31,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import InputError
-from .frame import blade_angle_from_chord, chord_line, pitch_motion
+from .frame import SectionLines, cut_section_lines, hull_section_lines, pitch_motion
 from .loads import centrifugal_force, centrifugal_moment, centrifugal_twisting_moment, moments_at_angle
 from .moments import Moments, point_mass, tet_volume_moments
 from .units import rpm_to_rad_s
@@ -67,7 +67,10 @@ class TetCut:
     triangles : (q, 3, 3) the section polygons as triangles in the plane, m
     triangle_element : (q,) element each section triangle cuts
 
-    A vertex exactly on the plane counts as inboard; the pieces it makes then have zero volume.
+    A vertex exactly on the plane counts as inboard (the tie rule of :mod:`bladesolid.frame`,
+    the same for the surface cut and the lumped masses); a cut point on an edge ending at such a
+    vertex is that vertex exactly, so the pieces it makes have exactly zero volume and an
+    element face lying in the plane is a section triangle with its own vertices.
     """
 
     whole: np.ndarray
@@ -79,9 +82,11 @@ class TetCut:
 
 
 def _edge_points(V, D, i, j):
-    """Points where the edges i→j of the tetrahedra V (c, 4, 3) meet the plane (D_i > 0 ≥ D_j)."""
+    """Points where the edges i→j of the tetrahedra V (c, 4, 3) meet the plane (D_i > 0 ≥ D_j);
+    the vertex j itself, exactly, when it lies on the plane (D_j = 0)."""
     w = D[:, i] / (D[:, i] - D[:, j])
-    return V[:, i] + w[:, None] * (V[:, j] - V[:, i])
+    p = V[:, i] + w[:, None] * (V[:, j] - V[:, i])
+    return np.where((D[:, j] == 0.0)[:, None], V[:, j], p)
 
 
 def cut_tetrahedra(nodes: np.ndarray, tets: np.ndarray, radius: float, tet_y=None) -> TetCut:
@@ -201,7 +206,10 @@ class Section:
     which the section extends, pointing to the side facing t), u2 = a × u1 the thickness
     direction; I1 is the second moment about the axis along u2, I2 about the axis along u1;
     is_round: I1 ≈ I2, every axis is principal, u1 is then taken along t;
-    leading_edge, trailing_edge (3,), chord_m, thickness_m; density_kg_m3 area-weighted.
+    leading_edge, trailing_edge (3,) the ends of the nose-to-tail chord line, chord_m their
+    distance; reference_line ``"chord"`` or ``"face"`` (docs/CONVENTIONS.md §2), line_angle_deg
+    its blade angle at the modelled position (the same reading as the blade-angle header),
+    thickness_m the largest thickness normal to it; density_kg_m3 area-weighted.
     """
 
     radius_m: float
@@ -217,27 +225,35 @@ class Section:
     chord_m: float
     thickness_m: float
     density_kg_m3: float
+    reference_line: str = "chord"
+    line_angle_deg: float = float("nan")
 
 
-def _empty_section(radius: float) -> Section:
+def _empty_section(radius: float, line: str = "chord") -> Section:
     nan3 = np.full(3, np.nan)
-    return Section(float(radius), 0.0, nan3, 0.0, 0.0, nan3, nan3, False, nan3, nan3, 0.0, 0.0, float("nan"))
+    return Section(float(radius), 0.0, nan3, 0.0, 0.0, nan3, nan3, False, nan3, nan3, 0.0, 0.0, float("nan"),
+                   line, float("nan"))
 
 
-def section_of(triangles: np.ndarray, densities: np.ndarray, radius: float, frame) -> Section:
+def section_of(triangles: np.ndarray, densities: np.ndarray, radius: float, frame,
+               lines: SectionLines | None = None, line: str = "chord") -> Section:
     """Section properties from its triangles (q, 3, 3) in the plane y = radius (hub frame).
 
     densities : (q,) density of the body each triangle belongs to, kg/m³ (for the
     area-weighted section density).
+    lines : the section's chord and face lines from its contour
+      (:func:`bladesolid.frame.cut_section_lines`); None: from the convex hull of the
+      triangles (:func:`bladesolid.frame.hull_section_lines`, exact for a convex section)
+    line : the reference line, ``"chord"`` or ``"face"``
     """
     if len(triangles) == 0:
-        return _empty_section(radius)
+        return _empty_section(radius, line)
     xz = triangles[:, :, [0, 2]]
     ref = xz.reshape(-1, 2).mean(axis=0)
     mom = triangle_area_moments(xz - ref)
     A, Sx, Sz, Sxx, Sxz, Szz = mom.sum(axis=0)
     if not A > 0:
-        return _empty_section(radius)
+        return _empty_section(radius, line)
     cx, cz = Sx / A, Sz / A
     J = np.array([[Sxx - A * cx * cx, Sxz - A * cx * cz], [Sxz - A * cx * cz, Szz - A * cz * cz]])
     w, v = np.linalg.eigh(J)
@@ -251,15 +267,15 @@ def section_of(triangles: np.ndarray, densities: np.ndarray, radius: float, fram
             u1 = -u1
     u2 = np.cross(frame.a, u1)
     centroid = np.array([ref[0] + cx, float(radius), ref[1] + cz])
-    pts = triangles.reshape(-1, 3)
-    le, te = chord_line(pts, frame)
-    chord = le - te
-    c_len = float(np.linalg.norm(chord))
-    n = np.cross(frame.a, chord / c_len) if c_len > 0 else u2
-    h = (pts - te) @ n
+    if lines is None:
+        lines = hull_section_lines(triangles.reshape(-1, 3), frame)
     rho = float(np.sum(mom[:, 0] * densities) / A)
-    return Section(float(radius), float(A), centroid, I1, I2, u1, u2, bool(is_round), le, te, c_len,
-                   float(h.max() - h.min()), rho)
+    if lines is None:
+        nan3 = np.full(3, np.nan)
+        return Section(float(radius), float(A), centroid, I1, I2, u1, u2, bool(is_round), nan3, nan3, 0.0, 0.0,
+                       rho, line, float("nan"))
+    return Section(float(radius), float(A), centroid, I1, I2, u1, u2, bool(is_round), lines.leading_edge,
+                   lines.trailing_edge, lines.chord_m, lines.thickness_m(line), rho, line, lines.angle_deg(line))
 
 
 # --- stations ---------------------------------------------------------------------------------
@@ -305,7 +321,9 @@ class SpanTable:
       radius_m; area_m2; centroid_m (n, 3); I1_m4 ≥ I2_m4 principal second moments of area
       about the centroid (I1 about the thickness-direction axis u2, I2 about the chordwise
       axis u1); principal_angle_deg the blade angle of the chordwise principal direction u1
-      (NaN for a round section); chord_m, thickness_m; local_blade_angle_deg of the chord line;
+      (NaN for a round section); chord_m the nose-to-tail chord; thickness_m the largest
+      thickness normal to the reference line, and local_blade_angle_deg the blade angle of that
+      line — the line of the blade-angle header (chord or face, docs/CONVENTIONS.md §2), same sign;
       density_kg_m3 (area-weighted over bodies);
       outboard: mass_outboard_kg, cf_outboard_vector_N (n, 3), cf_outboard_N = tension F·e,
       bending_principal_1_Nm (about the axis of I1 through the centroid, along u2: edgewise),
@@ -423,6 +441,7 @@ def span_table(blade, rpm: float, blade_angle_deg: float | None = None, stations
     rho_el = rho_body[blade.element_body]
     E = np.column_stack([el.mass, el.first, el.second.reshape(-1, 9)])
     tet_y = nodes[tets][:, :, 1]
+    line = blade.modelled_angle.reference_line if blade.modelled_angle is not None else "chord"
 
     whole = np.zeros((n, 13))
     pieces, p_station, p_weight, sections = [], [], [], []
@@ -432,7 +451,8 @@ def span_table(blade, rpm: float, blade_angle_deg: float | None = None, stations
         pieces.append(c.pieces)
         p_station.append(np.full(len(c.pieces), i))
         p_weight.append(c.piece_sign * rho_el[c.piece_element])
-        sections.append(section_of(c.triangles, rho_el[c.triangle_element], r, frame))
+        lines = cut_section_lines(blade.surfaces, frame, r)  # the header's reading, same surfaces
+        sections.append(section_of(c.triangles, rho_el[c.triangle_element], r, frame, lines=lines, line=line))
     P = np.concatenate(pieces)
     ist = np.concatenate(p_station)
     wgt = np.concatenate(p_weight)
@@ -473,7 +493,8 @@ def span_table(blade, rpm: float, blade_angle_deg: float | None = None, stations
             rows["b1"][i] = M @ u2
             rows["b2"][i] = M @ u1
             rows["pa"][i] = np.nan if sec.is_round else _angle_deg(u1, frame)
-            rows["lba"][i] = blade_angle_from_chord(R @ (sec.leading_edge - sec.trailing_edge), frame)
+            # a pitch change turns every line of the section by Δβ about a (docs/CONVENTIONS.md §2)
+            rows["lba"][i] = sec.line_angle_deg + delta
             rows["stress"][i] = rows["P"][i] / sec.area_m2
             if allowable_Pa is not None and rows["stress"][i] > 0:
                 rows["ms"][i] = allowable_Pa / rows["stress"][i] - 1.0

@@ -28,6 +28,7 @@ def test_example_job_parses_and_means_what_it_says(tmp_path):
     assert job.lumped[0][2] == pytest.approx((-0.010, 0.160, 0.030))  # mm -> m
     assert job.sweep_deg == (-10.0, 90.0, 1.0)
     assert job.mesh.endswith("demo_blade.stl") and job.mesh.startswith(str(tmp_path))
+    assert job.angle_line == "chord" and job.rated_rpm == 2500
 
 
 def test_flag_overrides_key():
@@ -77,6 +78,8 @@ def test_us_units_and_density():
         (minimal(stations=0), "between 1 and 2000"),
         (minimal(allowable="12 kg"), "stress"),
         (minimal(counterweight={"radius": 100, "arm": 50}), "missing required key 'clocking'"),
+        (minimal(angle_line="protractor"), "key 'angle_line'"),
+        (minimal(rated_rpm=0), "key 'rated_rpm'"),
     ],
 )
 def test_bad_jobs_are_refused_with_the_key_named(data, fragment):

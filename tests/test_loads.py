@@ -167,12 +167,17 @@ def test_closed_forms_equal_brute_force(demo_elements, kw, model_motion):
     m0 = moved(el, R, t)
     curve = ctm_curve(m0, frame, 0.0)
     w = omega(2700)
+    # precone cones the blade itself (docs/CONVENTIONS.md §1): the brute force turns the vertices,
+    # the pitch point and the pitch axis about the hub's x axis (e × k) through O, tip forward
+    C = Rotation.from_rotvec(np.cross(e0, k0) * math.radians(kw.get("precone_deg") or 0.0)).as_matrix()
+    nodes_c, P_c, e_c = O + (nodes - O) @ C.T, O + C @ (P - O), C @ e0
+    to_hub = R @ C.T  # vectors of the coned blade in the model frame -> hub frame
     for delta in (-37.0, -5.0, 0.0, 12.5, 44.0, 90.0, 133.0):
         op = operating_loads(m0, frame, 0.0, delta, 2700, curve=curve)
-        F, M, ctm = brute_force_loads(nodes, tets, RHO, O, frame.thrust_axis, frame.pitch_axis, P, s, delta, w)
+        F, M, ctm = brute_force_loads(nodes_c, tets, RHO, O, frame.thrust_axis, e_c, P_c, s, delta, w)
         # closed-form results are in the hub frame; bring the brute force there too
-        np.testing.assert_allclose(op.cf_N, R @ F, rtol=0, atol=1e-9 * np.linalg.norm(F))
-        np.testing.assert_allclose(op.moment_hub_Nm, R @ M, rtol=0, atol=1e-9 * np.linalg.norm(M))
+        np.testing.assert_allclose(op.cf_N, to_hub @ F, rtol=0, atol=1e-9 * np.linalg.norm(F))
+        np.testing.assert_allclose(op.moment_hub_Nm, to_hub @ M, rtol=0, atol=1e-9 * np.linalg.norm(M))
         scale = max(abs(ctm), 1e-9 * np.linalg.norm(M))
         assert abs(op.ctm_Nm - ctm) <= 1e-9 * scale
         assert abs(float(curve.ctm(delta, w)) - ctm) <= 1e-9 * scale
@@ -224,3 +229,80 @@ def test_counterweight_brings_ctm_to_target(demo_mesh):
     with pytest.raises(ValueError):
         size_counterweight(m0, frame, ba.angle_deg, counterweight_position(frame, chord, 0.16, 0.09, 0.0),
                            30.0, 2500, 0.0)
+
+
+# --- precone: the blade itself is coned ------------------------------------------------------
+
+
+@pytest.mark.parametrize("phi, kw", [(6.0, {}), (-4.0, dict(rotation="left", pitch_point=(0.01, 0.0, -0.004)))])
+def test_precone_equals_moving_the_mesh(phi, kw):
+    # Precone φ (docs/CONVENTIONS.md §1) cones the blade about the hub's x axis through O. The same
+    # blade moved by hand — its vertices and pitch point rotated with numpy, analysed with the
+    # tilted pitch axis and no precone — must give the same hub moment, forces and CTM, and so must
+    # the independent Keast quadrature over the moved elements (brute_force_loads above).
+    p = plate()
+    p.apply_translation([0.015, 0.0, 0.006])  # off the pitch axis: every term of the moment counts
+    nodes, tets = tetrahedralise_surface(p.vertices, p.faces)
+    C = Rotation.from_rotvec([math.radians(phi), 0.0, 0.0]).as_matrix()  # about x = e × k, tip to +k
+    coned = hub_frame(precone_deg=phi, **kw)
+    P = np.asarray(kw.get("pitch_point", (0.0, 0.0, 0.0)))
+    by_hand = hub_frame(pitch_axis=C @ [0.0, 1.0, 0.0], pitch_point=C @ P, rotation=kw.get("rotation", "right"))
+    moved_nodes = nodes @ C.T
+    m_c = tet_volume_moments(coned.to_hub(nodes), tets).total().scaled(RHO)
+    m_h = tet_volume_moments(by_hand.to_hub(moved_nodes), tets).total().scaled(RHO)
+    np.testing.assert_allclose(coned.k, by_hand.k, atol=1e-15)
+    assert coned.precone_deg == pytest.approx(phi, abs=1e-12) and by_hand.precone_deg == pytest.approx(phi, abs=1e-12)
+    w = omega(2500)
+    R_hub = by_hand.model_to_hub()[0]
+    for beta in (0.0, 20.0, 65.0):
+        a = operating_loads(m_c, coned, 0.0, beta, 2500)
+        b = operating_loads(m_h, by_hand, 0.0, beta, 2500)
+        F, M, ctm = brute_force_loads(moved_nodes, tets, RHO, np.zeros(3), np.array([0.0, 0.0, 1.0]),
+                                      C @ [0.0, 1.0, 0.0], C @ P, coned.rotation, beta, w)
+        scale = np.linalg.norm(M)
+        for got in (a, b):
+            np.testing.assert_allclose(got.cf_N, R_hub @ F, rtol=0, atol=1e-10 * np.linalg.norm(F))
+            np.testing.assert_allclose(got.moment_hub_Nm, R_hub @ M, rtol=0, atol=1e-10 * scale)
+            assert got.ctm_Nm == pytest.approx(ctm, abs=1e-10 * scale)
+        assert a.bending_out_of_plane_Nm == pytest.approx(b.bending_out_of_plane_Nm, abs=1e-10 * scale)
+
+
+def _box_moments(c, L, t, yc, zc):
+    """Mass and ∫y², ∫z², ∫yz dm of a box c × L × t (along x, y, z) centred at (0, yc, zc), density
+    RHO (parallel-axis theorem, any mechanics text)."""
+    m = RHO * c * L * t
+    return m, m * (yc**2 + L**2 / 12), m * (zc**2 + t**2 / 12), m * yc * zc
+
+
+@pytest.mark.parametrize("zc", [0.0, 0.01, -0.01])
+def test_precone_relieves_out_of_plane_bending(zc):
+    # A point (x, y, z) of the blade coned by φ about x sits at Y = y cos φ − z sin φ,
+    # Z = y sin φ + z cos φ; its centrifugal force Ω² (X, Y, 0) dm has the moment −Ω² Z Y dm about
+    # the x axis (the out-of-plane bending, + tipping the blade forward). Integrated:
+    #   M = −Ω² [sin φ cos φ (∫y² − ∫z²) + cos 2φ ∫yz]          (hand derivation)
+    # — for small φ the coned rotor blade's centrifugal restoring moment −Ω² φ ∫ r² dm (rotor
+    # flapping, W. Johnson, Helicopter Theory, 1980 — from memory). Precone therefore makes the
+    # bending more negative, relieving the forward bending of the thrust; a CG forward of the
+    # plane (zc > 0) already bends aft at φ = 0, one aft of it (zc < 0) bends forward until the
+    # precone with tan 2φ = −2∫yz / (∫y² − ∫z²) balances it.
+    c, L, t, root = 0.2, 0.8, 0.01, 0.2
+    box = trimesh.creation.box([c, L, t])
+    box.apply_translation([0.0, root + L / 2, zc])
+    _, yy, zz, yz = _box_moments(c, L, t, root + L / 2, zc)
+    w = omega(2500)
+    got = []
+    for phi in (0.0, 2.0, 5.0, 10.0):
+        frame = hub_frame(precone_deg=phi)
+        m0 = surface_volume_moments(frame.to_hub(box.vertices), box.faces).scaled(RHO)
+        op = operating_loads(m0, frame, 0.0, 0.0, 2500)
+        f = math.radians(phi)
+        expected = -(w**2) * (math.sin(f) * math.cos(f) * (yy - zz) + math.cos(2 * f) * yz)
+        assert op.bending_out_of_plane_Nm == pytest.approx(expected, rel=1e-10, abs=1e-9 * w**2 * yy)
+        got.append(op.bending_out_of_plane_Nm)
+    assert all(b < a for a, b in zip(got, got[1:]))  # falls with precone
+    assert got[0] == pytest.approx(-(w**2) * yz, abs=1e-9 * w**2 * yy)
+    if zc < 0:  # the balancing precone
+        phi0 = 0.5 * math.degrees(math.atan(-2 * yz / (yy - zz)))
+        frame = hub_frame(precone_deg=phi0)
+        m0 = surface_volume_moments(frame.to_hub(box.vertices), box.faces).scaled(RHO)
+        assert abs(operating_loads(m0, frame, 0.0, 0.0, 2500).bending_out_of_plane_Nm) < 1e-9 * w**2 * yy

@@ -1,6 +1,7 @@
 """The whole review (`check`, `demo`): one folder with every output, the HTML page, escaping."""
 
 import json
+import math
 from html.parser import HTMLParser
 
 import numpy as np
@@ -160,3 +161,53 @@ def test_check_with_a_blade_set_matches_it(tmp_path, demo_path, capsys):
     png = tmp_path / "set.png"
     assert main(["match", *[str(tmp_path / r) for r in reports], "--plot", str(png)]) == 0
     assert png.read_bytes()[:4] == b"\x89PNG"
+
+
+def _proof_report(tmp_path, **keys):
+    """The loads report of a flat aluminium bar (0.25 × 0.75 × 1/64 m from r = 0.25 m, modelled at 0°;
+    dimensions exact in the STL file's single precision) with a lumped mass and a sized
+    counterweight, through the job keys."""
+    import trimesh
+
+    from bladesolid import api
+    from bladesolid.job import build_job
+    from bladesolid.review import loads_report
+
+    bar = trimesh.creation.box([0.25, 0.75, 1 / 64])
+    bar.apply_translation([0.0, 0.625, 0.0])
+    bar.export(tmp_path / "bar.stl")
+    data = {"mesh": "bar.stl", "units": "m", "density": "2700 kg/m^3",
+            "operating_point": [{"name": "take-off", "rpm": 2500, "blade_angle": 30.0},
+                                {"name": "overspeed", "rpm": 2875, "blade_angle": 30.0}],
+            "lumped_mass": [{"name": "balance weight", "mass": "0.05 kg", "position": [0.0, 0.3, 0.01]}],
+            "counterweight": {"radius": 0.15, "arm": 0.08, "clocking": 90.0}}
+    data.update(keys)
+    job = build_job(data, str(tmp_path / "job.toml"), str(tmp_path))
+    blade = api.blade_from_job(job, elements=False)
+    return loads_report(blade, job, api.loads_for_job(blade, job))
+
+
+@pytest.mark.parametrize("rated", [2600.0, None])
+def test_proof_load_at_rated_speed_with_lumped_mass_and_counterweight(tmp_path, rated):
+    # Proof load = 2 × the radial pull at the maximum rated speed of everything that turns with the
+    # blade (14 CFR 35.35, centrifugal load tests — from memory): the bar, the lumped mass and the
+    # counterweight the job sizes, each m Ω² r (centripetal force of a mass at radius r, any
+    # dynamics text; no precone, so r is the radius along the pitch axis at every blade angle).
+    r = _proof_report(tmp_path, **({} if rated is None else {"rated_rpm": rated}))
+    pl, cw = r["proof_load"], r["counterweight_sizing"]
+    rpm = 2875.0 if rated is None else rated  # without rated_rpm: the highest operating speed
+    w2 = (rpm * 2 * math.pi / 60) ** 2
+    m_bar = 2700.0 * 0.25 * 0.75 / 64
+    assert cw["mass_kg"] > 0
+    expected = w2 * (m_bar * 0.625 + 0.05 * 0.3 + cw["mass_kg"] * 0.15)
+    assert pl["radial_pull_N"] == pytest.approx(expected, rel=1e-12)
+    assert pl["radial_pull_counterweight_N"] == pytest.approx(w2 * cw["mass_kg"] * 0.15, rel=1e-12)
+    assert pl["radial_pull_lumped_N"] == pytest.approx(w2 * 0.05 * 0.3, rel=1e-12)
+    assert pl["proof_load_N"] == pytest.approx(2 * expected, rel=1e-12)
+    assert pl["factor"] == 2.0 and pl["basis_rpm"] == rpm and pl["includes_counterweight"] is True
+    assert pl["blade_angle_deg"] == 30.0 and "35.35" in pl["source"]
+    if rated is None:
+        assert "highest operating-point speed" in pl["basis"] and "no maximum rated speed" in pl["basis"]
+        assert pl["at_operating_point"] == "overspeed"
+    else:
+        assert "maximum rated speed" in pl["basis"] and "2600" in pl["basis"]

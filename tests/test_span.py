@@ -256,9 +256,9 @@ def test_tapered_plate_closed_form(tmp_path, rotation):
     frame = hub_frame(rotation=rotation)
     c0, c1, t, y0, y1 = C0, C1, THICK, Y0, Y1
     blade = _load(tmp_path, _plate(frame, c0, c1, t, y0, y1), "plate.stl", frame=frame)
-    # the modelled angle is measured on the chord: the diagonal of the reference section
-    c_ref = c0 + (c1 - c0) * (blade.reference_radius_m - y0) / (y1 - y0)
-    assert abs(blade.modelled_deg - THETA) == pytest.approx(math.degrees(math.atan(t / c_ref)), abs=1e-9)
+    # the modelled angle is measured on the nose-to-tail chord: from the middle of one square edge
+    # to the middle of the other, the plate's own direction (docs/CONVENTIONS.md §2)
+    assert blade.modelled_deg == pytest.approx(THETA, abs=1e-9)
     radii = np.linspace(y0 + 1e-4, y1 - 1e-4, 41)
     beta = 40.0
     T = span_table(blade, RPM, blade_angle_deg=beta, stations=radii)
@@ -269,11 +269,11 @@ def test_tapered_plate_closed_form(tmp_path, rotation):
     np.testing.assert_allclose(T.I1_m4, t * c**3 / 12, rtol=1e-10)
     np.testing.assert_allclose(T.I2_m4, c * t**3 / 12, rtol=1e-9)
     np.testing.assert_allclose(T.principal_angle_deg, th, atol=1e-9)
-    d = np.hypot(c, t)  # farthest-apart points of a rectangle: the diagonal (elementary geometry)
-    np.testing.assert_allclose(T.chord_m, d, rtol=1e-11)
-    np.testing.assert_allclose(T.thickness_m, 2 * c * t / d, rtol=1e-9)
-    # the chord (diagonal) is off the principal direction by ± atan(t/c)
-    np.testing.assert_allclose(np.abs(T.local_blade_angle_deg - th), np.degrees(np.arctan(t / c)), atol=1e-9)
+    # a rectangle's nose-to-tail chord is its length c, its thickness normal to it t, and its local
+    # blade angle that of the plate itself, the header's reading (elementary geometry)
+    np.testing.assert_allclose(T.chord_m, c, rtol=1e-11)
+    np.testing.assert_allclose(T.thickness_m, t, rtol=1e-9)
+    np.testing.assert_allclose(T.local_blade_angle_deg, th, atol=1e-9)
     mass = RHO * t * (cpoly.integ()(y1) - cpoly.integ()(radii))
     np.testing.assert_allclose(T.mass_outboard_kg, mass, rtol=1e-11)
     yc = (cpoly * np.polynomial.Polynomial([0, 1])).integ()
@@ -293,6 +293,27 @@ def test_tapered_plate_closed_form(tmp_path, rotation):
     np.testing.assert_allclose(T.ctm_strip_outboard_Nm, integrate_outboard(radii, g, y1), rtol=1e-9)
     # ... and close to the exact integral (trapezoid error of a cubic over 40 steps)
     assert T.ctm_strip_outboard_Nm[0] == pytest.approx(ctm[0], rel=2e-3)
+
+
+@pytest.mark.parametrize("angle_line", ["chord", "face"])
+def test_square_edged_plate_at_zero_reads_zero_everywhere(tmp_path, angle_line):
+    # A 10 mm square-edged flat plate modelled at 0° (chord along t, face aft): at every station
+    # its thickness is 10 mm and its local blade angle 0°, on either reference line, the header's
+    # reading; set to 30° every station reads 30° (elementary geometry; docs/CONVENTIONS.md §2).
+    # The plate's corners are exact in the STL file's single precision (binary fractions).
+    plate = trimesh.creation.box([0.25, 0.75, 0.0078125])
+    plate.apply_translation([0.0, 0.625, 0.0])
+    path = tmp_path / "plate.stl"
+    plate.export(path)
+    blade = api.load_blade(path, "m", [f"{RHO} kg/m^3"], angle_line=angle_line)
+    assert blade.modelled_deg == 0.0 and blade.modelled_angle.reference_line == angle_line
+    radii = np.linspace(0.26, 0.99, 9)
+    T = span_table(blade, RPM, stations=radii)
+    np.testing.assert_allclose(T.thickness_m, 0.0078125, rtol=1e-12)
+    np.testing.assert_allclose(T.chord_m, 0.25, rtol=1e-12)
+    np.testing.assert_allclose(T.local_blade_angle_deg, 0.0, atol=1e-12)
+    T = span_table(blade, RPM, blade_angle_deg=30.0, stations=radii)
+    np.testing.assert_allclose(T.local_blade_angle_deg, 30.0, atol=1e-12)
 
 
 def test_two_bodies_area_weighted_density(tmp_path):
