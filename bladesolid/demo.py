@@ -32,6 +32,10 @@ from pathlib import Path
 
 import numpy as np
 
+from .compare.transforms import apply_transform, rigid_matrix
+from .frame import rotation_about
+from .geometry import enclosed_volume
+
 #: Density of the demo blade material (a wrought high-strength aluminium alloy), kg/m³ — from memory.
 DEMO_DENSITY_KG_M3 = 2810.0
 
@@ -332,11 +336,6 @@ def section_rings(params: BladeParams):
 # --------------------------------------------------------------------------- surface
 
 
-def _signed_volume(vertices: np.ndarray, faces: np.ndarray) -> float:
-    tri = vertices[faces]
-    return float(np.einsum("ij,ij->i", tri[:, 0], np.cross(tri[:, 1], tri[:, 2])).sum() / 6.0)
-
-
 def blade_surface(params: BladeParams | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Closed triangle surface of the blade in the hub frame.
 
@@ -375,7 +374,7 @@ def blade_surface(params: BladeParams | None = None) -> tuple[np.ndarray, np.nda
     last = (n_rings - 1) * n
     cap = np.column_stack([np.full(n, i_tip), last + i, last + j])
     faces = np.vstack(bands + [root, cap]).astype(np.int64)
-    if _signed_volume(vertices, faces) < 0.0:
+    if enclosed_volume(vertices, faces) < 0.0:
         faces = faces[:, ::-1].copy()
     return vertices, faces
 
@@ -407,22 +406,9 @@ def rigid_transform(angle_deg: float, axis, translation) -> np.ndarray:
     [1.0, 3.0, 3.0, 1.0]
     """
     a = np.asarray(axis, dtype=float)
-    norm = np.linalg.norm(a)
-    if a.shape != (3,) or norm == 0.0:
+    if a.shape != (3,) or np.linalg.norm(a) == 0.0:
         raise ValueError(f"rigid_transform: axis must be a non-zero 3-vector, got {axis!r}")
-    a = a / norm
-    th = math.radians(angle_deg)
-    kx = np.array([[0.0, -a[2], a[1]], [a[2], 0.0, -a[0]], [-a[1], a[0], 0.0]])
-    rot = np.eye(3) + math.sin(th) * kx + (1.0 - math.cos(th)) * (kx @ kx)
-    out = np.eye(4)
-    out[:3, :3] = rot
-    out[:3, 3] = np.asarray(translation, dtype=float)
-    return out
-
-
-def apply_transform(transform: np.ndarray, vertices: np.ndarray) -> np.ndarray:
-    """Points ``(n, 3)`` moved by a 4x4 rigid transform."""
-    return vertices @ transform[:3, :3].T + transform[:3, 3]
+    return rigid_matrix(rotation_about(a, math.radians(angle_deg)), translation)
 
 
 def scanned_variant(params: BladeParams | None = None, angle_deg: float = SCAN_ANGLE_DEG,
@@ -477,7 +463,7 @@ def write_demo_meshes(outdir) -> tuple[Path, ...]:
             "file": path.name,
             "units": "mm",
             "faces": int(len(f)),
-            "volume_mm3": round(abs(_signed_volume(v, f)), 3),
+            "volume_mm3": round(abs(enclosed_volume(v, f)), 3),
             "designed_blade_angle_deg": params.blade_angle_ref_deg,
             "reference_radius_mm": params.reference_radius_mm,
             "transform_from_hub_frame": transform.tolist(),

@@ -26,7 +26,7 @@ import numpy as np
 
 from .frame import HubFrame, chord_line, section_points
 from .loads import centrifugal_twisting_moment, moments_at_angle, radial_pull
-from .mesh import tet_signed_volumes
+from .geometry import tet_signed_volumes
 from .moments import ElementMoments, point_mass
 from .units import rpm_to_rad_s
 

@@ -186,8 +186,8 @@ def test_tip_dressing_removed_volume_and_loads(reference, dressed):
     assert dressed.delta.radial_pull_N < 0                                            # lighter tip, less pull
     # the removed tip piece on its own: manifold3d boolean + trimesh mass properties (reference
     # libraries), then the docs/CONVENTIONS.md §4 formulas on those moments
-    a = compare._manifold(reference.surfaces, "ref")
-    b = compare._manifold(_surfaces("demo_blade_tip_dressed.stl"), "dressed")
+    a = compare.solid(reference.surfaces, "ref")
+    b = compare.solid(_surfaces("demo_blade_tip_dressed.stl"), "dressed")
     g = (a - b).to_mesh64()
     piece = trimesh.Trimesh(np.asarray(g.vert_properties)[:, :3], np.asarray(g.tri_verts), process=False)
     mp = piece.mass_properties

@@ -350,7 +350,7 @@ def test_components_match_scipy():
     from scipy.sparse import coo_matrix
     from scipy.sparse.csgraph import connected_components
 
-    from bladesolid.io import _components
+    from bladesolid.io.checks import components as _components
 
     rng = np.random.default_rng(7)
     for n, e in [(1, 0), (10, 3), (500, 400), (2000, 1990), (3000, 6000)]:
