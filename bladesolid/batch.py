@@ -187,7 +187,7 @@ def _run(job_path, command, folder, force) -> dict:
     from .safefile import check_new_folder
 
     if command not in COMMANDS:
-        raise InputError("--command", f"expected one of {', '.join(COMMANDS)}, got {command!r}")
+        raise InputError("command", f"expected one of {', '.join(COMMANDS)}, got {command!r}")
     check_new_folder(folder, force)  # refused before any work
     job = load_job(job_path)
     status = OK
@@ -205,9 +205,7 @@ def _run(job_path, command, folder, force) -> dict:
             require_operating_points(job)
             data = loads_report(blade, job, ops)
         else:
-            data = report.base_report(blade)
-            data["mass_properties"] = report.mass_section(api.mass_properties(blade))
-            data["blade_angle"] = report.blade_angle_section(blade)
+            data = report.mass_report(blade, api.mass_properties(blade))
         with report.staged_folder(folder, force) as tmp:
             with open(os.path.join(tmp, "report.json"), "w", encoding="utf-8") as fh:
                 fh.write(report.dumps(data))
@@ -272,7 +270,7 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
     from . import report
 
     if command not in COMMANDS:
-        raise InputError("--command", f"expected one of {', '.join(COMMANDS)}, got {command!r}")
+        raise InputError("command", f"expected one of {', '.join(COMMANDS)}, got {command!r}")
     t0 = time.perf_counter()
     jobs = collect_jobs(inputs)
     out = os.path.abspath(os.fspath(out))
@@ -347,22 +345,18 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
                     cluster.close()
     seconds = time.perf_counter() - t0
     rows = tuple(rows)
-    summary = {
-        "schema": SUMMARY_SCHEMA,
-        "command": command,
-        "where": where,
-        "jobs": len(rows),
-        "ok": sum(r["status"] == OK for r in rows),
-        "outside_limits": sum(r["status"] == OUTSIDE for r in rows),
-        "failed": sum(r["status"] not in (OK, OUTSIDE) for r in rows),
-        "seconds": seconds,
-        "columns": list(COLUMNS),
-        "rows": [{c: r.get(c) for c in COLUMNS} for r in rows],
-    }
-    from . import CAUTION, __version__
-
-    summary = {"schema": SUMMARY_SCHEMA, "tool": {"name": "bladesolid", "version": __version__},
-               "caution": CAUTION, **{k: v for k, v in summary.items() if k != "schema"}}
+    summary = report.header(
+        SUMMARY_SCHEMA,
+        command=command,
+        where=where,
+        jobs=len(rows),
+        ok=sum(r["status"] == OK for r in rows),
+        outside_limits=sum(r["status"] == OUTSIDE for r in rows),
+        failed=sum(r["status"] not in (OK, OUTSIDE) for r in rows),
+        seconds=seconds,
+        columns=list(COLUMNS),
+        rows=[{c: r.get(c) for c in COLUMNS} for r in rows],
+    )
     report.atomic_write_text(csv_path, report.csv_text(summary["rows"], list(COLUMNS)), force=True)
     report.atomic_write_text(json_path, report.dumps(summary), force=True)
     return BatchResult(rows, csv_path, json_path, seconds, where)

@@ -27,6 +27,7 @@ from __future__ import annotations
 
 import json
 import math
+import os
 from dataclasses import asdict, dataclass, replace
 from pathlib import Path
 
@@ -425,6 +426,57 @@ def scanned_variant(params: BladeParams | None = None, angle_deg: float = SCAN_A
 
 
 # --------------------------------------------------------------------------- files
+
+
+#: The repair scenario's job: the BW-3 blade after a leading-edge blend at the invented Larkspur
+#: Blade Repair shop, scanned in the scanner's own frame, checked against its nominal.
+REPAIR_JOB = """\
+# bladesolid demo repair job: the BW-3 blade after a leading-edge blend at the invented
+# Larkspur Blade Repair shop, scanned in the scanner's own frame, checked against nominal.
+name = "BW-3 serial BW3-0001 after LE blend (invented)"
+mesh = "demo_blade_le_blend_scanned.stl"
+reference = "demo_blade.stl"
+limits = "repair_limits.toml"
+units = "mm"
+material = "al-2025-t6"
+blades = 3
+stations = 16
+
+[[operating_point]]
+name = "take-off"
+rpm = 2500
+blade_angle = 25.0
+"""
+
+#: The repair scenario's limits file (the user's allowed changes; invented for the demo).
+REPAIR_LIMITS = """\
+# Allowed changes, repaired minus nominal. These are the USER'S limits, to be taken from the
+# approved repair data; the figures below are invented for the demo.
+source = "Larkspur Blade Repair, demo repair scheme (invented)"
+mass = "-30 g:+2 g"
+max_abs_static_moment = "15 kg*mm"
+max_abs_ctm = "3 N*m"
+blade_angle = "-0.25:0.25"
+cg_shift = "1.5 mm"
+max_deviation = "5 mm"
+removed_volume = "12000 mm^3"
+"""
+
+
+def write_demo(folder) -> dict[str, str]:
+    """Write the demo into ``folder`` (created): the blade meshes (:func:`write_demo_meshes`),
+    the demo job (:data:`bladesolid.job.EXAMPLE_JOB`, the one example job), the repair job and
+    its limits file. Returns the paths of ``"job"``, ``"repair_job"`` and ``"repair_limits"``."""
+    from .job import EXAMPLE_JOB
+    from .safefile import atomic_write_text
+
+    os.makedirs(folder, exist_ok=True)
+    write_demo_meshes(folder)
+    paths = {"job": os.path.join(folder, "demo_job.toml"), "repair_job": os.path.join(folder, "repair_job.toml"),
+             "repair_limits": os.path.join(folder, "repair_limits.toml")}
+    for key, text in (("job", EXAMPLE_JOB), ("repair_job", REPAIR_JOB), ("repair_limits", REPAIR_LIMITS)):
+        atomic_write_text(paths[key], text, force=True)
+    return paths
 
 
 def demo_variants() -> dict[str, BladeParams]:

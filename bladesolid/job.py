@@ -13,7 +13,7 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -22,7 +22,9 @@ from .errors import InputError
 EXAMPLE_JOB = '''\
 # bladesolid job file: every key has the command-line flag of the same name
 # (pitch_axis <-> --pitch-axis); a flag given beside the job file overrides it.
-name = "BW-3 blade, serial BW3-0142"   # free text, shown in the reports
+# This is the demo job: the invented Brightwater Propellers BW-3 blade (3 blades, 2.0 m
+# diameter, aluminium, modelled at 25 deg at 0.75 R). Every number here is invented.
+name = "BW-3 demo blade, serial BW3-0001 (invented)"   # free text, shown in the reports
 mesh = "demo_blade.stl"                # path relative to this file
 units = "mm"                           # length unit of the mesh and of every point below
 material = "al-2025-t6"                # or: density = "2810 kg/m^3"; a list gives one per body
@@ -41,7 +43,7 @@ reference_fraction = 0.75              # reference station for the blade angle (
 sweep = "-10:90:1"                     # blade-angle range of the CTM sweep, degrees FROM:TO:STEP
 rpm_sweep = "0:3000:100"               # speed range of the speed sweep, rpm FROM:TO:STEP
 stations = 16                          # spanwise stations: a count, or a list of radii
-# allowable = "240 MPa"                # material allowable for the centrifugal margin of safety
+allowable = "200 MPa"                  # allowable for the centrifugal margin of safety (invented)
 proof_factor = 2.0                     # centrifugal proof load = factor x largest radial pull
 
 [[operating_point]]                    # the first one is used for sweeps and spanwise tables
@@ -63,41 +65,48 @@ blade_angle = 25.0
 name = "balance weight"
 mass = "0.045 kg"
 position = [-10.0, 160.0, 30.0]        # model frame, model units
+
+[counterweight]                        # size a counterweight for a net CTM at take-off
+radius = 160.0                         # along the pitch axis, model units
+arm = 90.0                             # from the pitch axis, model units
+clocking = 90.0                        # degrees from the chord line (90: on the chord normal)
+target_ctm = "0 N*m"                   # the net CTM wanted
 '''
 
-#: key -> (kind, flag); kinds are checked by _check below.
-KEYS: dict[str, tuple[str, str]] = {
-    "name": ("str", "--name"),
-    "mesh": ("path", "MESH"),
-    "units": ("str", "--units"),
-    "density": ("quantity_or_list", "--density"),
-    "material": ("str_or_list", "--material"),
-    "blades": ("int", "--blades"),
-    "hub_centre": ("vec3", "--hub-centre"),
-    "thrust_axis": ("vec3", "--thrust-axis"),
-    "pitch_axis": ("vec3", "--pitch-axis"),
-    "pitch_point": ("vec3", "--pitch-point"),
-    "precone": ("float", "--precone"),
-    "rotation": ("str", "--rotation"),
-    "reference_fraction": ("float", "--reference-fraction"),
-    "reference_radius": ("float", "--reference-radius"),
-    "rpm": ("float_or_list", "--rpm"),
-    "blade_angle": ("float", "--blade-angle"),
-    "pitch_change": ("float", "--pitch-change"),
-    "sweep": ("range", "--sweep"),
-    "rpm_sweep": ("range", "--rpm-sweep"),
-    "stations": ("stations", "--stations"),
-    "allowable": ("quantity", "--allowable"),
-    "proof_factor": ("float", "--proof-factor"),
-    "elements": ("int", "--elements"),
-    "element_size": ("float", "--element-size"),
-    "field_faces": ("int", "--field-faces"),
-    "reference": ("path", "--reference"),
-    "limits": ("path", "--limits"),
-    "operating_point": ("tables", ""),
-    "lumped_mass": ("tables", ""),
-    "counterweight": ("table", ""),
-    "set": ("table", ""),
+#: Every top-level key and the command-line argument that gives it (MESH: the positional
+#: argument; "": a table, given in a job file only).
+KEYS: dict[str, str] = {
+    "name": "--name",
+    "mesh": "MESH",
+    "units": "--units",
+    "density": "--density",
+    "material": "--material",
+    "blades": "--blades",
+    "hub_centre": "--hub-centre",
+    "thrust_axis": "--thrust-axis",
+    "pitch_axis": "--pitch-axis",
+    "pitch_point": "--pitch-point",
+    "precone": "--precone",
+    "rotation": "--rotation",
+    "reference_fraction": "--reference-fraction",
+    "reference_radius": "--reference-radius",
+    "rpm": "--rpm",
+    "blade_angle": "--blade-angle",
+    "pitch_change": "--pitch-change",
+    "sweep": "--sweep",
+    "rpm_sweep": "--rpm-sweep",
+    "stations": "--stations",
+    "allowable": "--allowable",
+    "proof_factor": "--proof-factor",
+    "elements": "--elements",
+    "element_size": "--element-size",
+    "field_faces": "--field-faces",
+    "reference": "--reference",
+    "limits": "--limits",
+    "operating_point": "",
+    "lumped_mass": "",
+    "counterweight": "",
+    "set": "",
 }
 
 OPERATING_KEYS = {"name", "rpm", "blade_angle", "pitch_change"}
@@ -159,7 +168,6 @@ class Job:
     reference: str | None = None
     limits: str | None = None
     set_reports: tuple = ()
-    raw: dict = field(default_factory=dict, repr=False, compare=False)
 
 
 def parse_range(text, source: str, key: str) -> tuple[float, float, float]:
@@ -214,7 +222,7 @@ def parse_vec3(text, source: str, key: str) -> tuple[float, float, float]:
 
 
 def _where(src: str, key: str, from_flag: bool) -> str:
-    flag = KEYS.get(key, ("", ""))[1]
+    flag = KEYS.get(key, "")
     return flag if from_flag and flag else f"{src}: key '{key}'"
 
 
@@ -493,7 +501,6 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
         reference=path_of("reference") if "reference" in merged else None,
         limits=path_of("limits") if "limits" in merged else None,
         set_reports=set_reports,
-        raw=dict(merged),
     )
 
 

@@ -176,7 +176,7 @@ def bench_sweep():
 
     print("[3] CTM sweep, 3601 blade angles", flush=True)
     blade = api.load_blade(DEMO, "mm", ["2810 kg/m^3"])
-    curve = api.blade_curve(blade)
+    curve = blade.ctm_curve
     omega = rpm_to_rad_s(2500.0)
     betas = np.linspace(-180.0, 180.0, 3601)
     t_closed = median_time(lambda: curve.ctm(betas, omega), repeats=50, warmup=3)

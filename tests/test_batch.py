@@ -223,7 +223,7 @@ def test_bad_batch_inputs(tmp_path):
         batch.collect_jobs([empty])
     with pytest.raises(InputError, match="not found"):
         batch.collect_jobs([tmp_path / "nothing-here"])
-    with pytest.raises(InputError, match="--command"):
+    with pytest.raises(InputError, match="^command: "):
         batch.run_batch([empty], tmp_path / "o", command="span")
     with pytest.raises(InputError, match="does not exist"):
         batch.run_batch([write_jobs(tmp_path / "j")], tmp_path / "no" / "such" / "out", workers=0)

@@ -12,14 +12,13 @@ coordinates (m), and ``transform_to_hub`` to the reference's hub frame.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
 from ..errors import InputError
-from ..frame import HubFrame, measure_blade_angle
 from ..loads import OperatingLoads, operating_loads, static_moment
-from ..moments import Moments, surface_volume_moments, zero_moments
+from ..moments import Moments
 from .deviation import Deviation, boolean_volumes, signed_deviation
 from .limits import LIMITS_NOTE, LimitCheck, Limits, check_limits
 from .query import SurfaceQuery, merge_surfaces
@@ -48,32 +47,19 @@ class BladeFigures:
     loads: OperatingLoads
 
 
-def blade_figures(surfaces, densities, frame: HubFrame, reference_radius_m: float, rpm: float, *,
-                  blade_angle_deg: float | None = None, modelled_fallback_deg: float = 0.0,
-                  lumped: Moments | None = None, name: str = "", source: str = "mesh") -> BladeFigures:
-    """Figures of a blade from its surfaces (hub frame, m) and one density per body (kg/m³).
-
-    Moments from the closed surfaces (divergence theorem) times density, plus ``lumped``; the
-    blade angle measured at ``reference_radius_m``; loads with the blade set to
-    ``blade_angle_deg`` measured there (default: as modelled). When the station cannot be
-    measured the modelled angle is taken as ``modelled_fallback_deg``.
+def blade_figures(blade, rpm: float, blade_angle_deg: float, *, modelled_fallback_deg: float = 0.0) -> BladeFigures:
+    """Figures of a blade analysed from its closed surfaces (a :class:`bladesolid.api.Blade` of
+    the surface route, :func:`bladesolid.api.blade_from_surfaces`): its mass figures as
+    modelled (registered), and its loads with the blade set to ``blade_angle_deg`` measured at
+    its reference station. When the station cannot be measured the modelled angle is taken as
+    ``modelled_fallback_deg``.
     """
-    m = zero_moments()
-    vol = 0.0
-    for (v, f), rho in zip(surfaces, densities):
-        u = surface_volume_moments(v, f)
-        vol += abs(u.mass)
-        m = m + u.scaled(rho)
-    if lumped is not None:
-        m = m + lumped
-    try:
-        modelled = measure_blade_angle(surfaces, frame, reference_radius_m, source=source).angle_deg
-    except InputError:
-        modelled = None
+    m = blade.moments
+    modelled = None if blade.modelled_angle is None else blade.modelled_angle.angle_deg
     base = modelled if modelled is not None else modelled_fallback_deg
-    beta = base if blade_angle_deg is None else float(blade_angle_deg)
-    ops = operating_loads(m, frame, base, beta, rpm, name=name)
-    return BladeFigures(name, m, vol, float(m.mass), m.cg, float(static_moment(m, frame.k)), modelled, ops)
+    ops = operating_loads(m, blade.frame, base, float(blade_angle_deg), rpm, name=blade.name)
+    return BladeFigures(blade.name, m, blade.volume_m3, float(m.mass), m.cg, float(static_moment(m, blade.frame.k)),
+                        modelled, ops)
 
 
 @dataclass(frozen=True)
@@ -144,13 +130,15 @@ class Comparison:
         }
 
 
-def _repaired_densities(reference, n_bodies: int, source: str) -> list[float]:
-    rho = [m.density_kg_m3 for m in reference.materials]
-    if n_bodies == len(rho):
-        return rho
-    if len(set(rho)) == 1:
-        return rho[:1] * n_bodies
-    raise InputError(source, f"the repaired mesh has {n_bodies} bodies and the reference {len(rho)} bodies of "
+def _repaired_materials(reference, n_bodies: int, source: str) -> tuple:
+    """The reference's materials for the bodies of the repaired mesh: one per body when the
+    counts agree, else the reference's single density for every body."""
+    mats = tuple(reference.materials)
+    if n_bodies == len(mats):
+        return mats
+    if len({m.density_kg_m3 for m in mats}) == 1:
+        return mats[:1] * n_bodies
+    raise InputError(source, f"the repaired mesh has {n_bodies} bodies and the reference {len(mats)} bodies of "
                              "different densities; bodies cannot be paired for their densities")
 
 
@@ -174,10 +162,11 @@ def compare_blade(reference, repaired_surfaces, rpm: float, *, blade_angle_deg: 
 
     Deltas are repaired minus reference, in the reference's hub frame.
     """
+    from ..api import blade_from_surfaces, resolve_blade_angle
+
     frame = reference.frame
     warnings = []
-    if blade_angle_deg is not None and pitch_change_deg is not None:
-        raise InputError("--blade-angle", "give either --blade-angle or --pitch-change, not both")
+    beta = resolve_blade_angle(reference, blade_angle_deg, pitch_change_deg)  # both blades set to it
     ref_surfaces = [(np.asarray(v, float), np.asarray(f, np.int64)) for v, f in reference.surfaces]
     rep = [(np.asarray(v, float), np.asarray(f, np.int64)) for v, f in repaired_surfaces]
     fixed = merge_surfaces(ref_surfaces)
@@ -204,20 +193,14 @@ def compare_blade(reference, repaired_surfaces, rpm: float, *, blade_angle_deg: 
     else:
         removed = added = float("nan")
 
-    modelled_ref = reference.modelled_angle.angle_deg if reference.modelled_angle is not None else None
-    if modelled_ref is None and blade_angle_deg is not None:
-        raise InputError(reference.source, "the reference's blade angle could not be measured at its reference "
-                                           "station; use --pitch-change")
-    base = modelled_ref if modelled_ref is not None else 0.0
-    beta = float(blade_angle_deg) if blade_angle_deg is not None else base + float(pitch_change_deg or 0.0)
-    rho_ref = [m.density_kg_m3 for m in reference.materials]
-    fig_ref = blade_figures(ref_surfaces, rho_ref, frame, reference.reference_radius_m, rpm, blade_angle_deg=beta,
-                            modelled_fallback_deg=base, lumped=reference.lumped_moments, name=reference.name,
-                            source=reference.source)
-    rho_rep = _repaired_densities(reference, len(rep), repaired_source)
-    fig_rep = blade_figures(reg_surfaces, rho_rep, frame, reference.reference_radius_m, rpm, blade_angle_deg=beta,
-                            modelled_fallback_deg=base, lumped=reference.lumped_moments, name=repaired_name,
-                            source=repaired_source)
+    base = reference.modelled_deg
+    common = dict(lumped=reference.lumped, reference_radius_m=reference.reference_radius_m, units=reference.units)
+    ref_blade = blade_from_surfaces(ref_surfaces, reference.materials, frame, name=reference.name,
+                                    source=reference.source, **common)
+    rep_blade = blade_from_surfaces(reg_surfaces, _repaired_materials(reference, len(rep), repaired_source), frame,
+                                    name=repaired_name, source=repaired_source, **common)
+    fig_ref = blade_figures(ref_blade, rpm, beta, modelled_fallback_deg=base)
+    fig_rep = blade_figures(rep_blade, rpm, beta, modelled_fallback_deg=base)
     if fig_rep.modelled_deg is None:
         warnings.append(f"the repaired blade's angle could not be measured at r = {reference.reference_radius_m:.4g} m; "
                         "it is taken as registered (same rigid pitch setting as the reference)")
@@ -237,8 +220,6 @@ def compare_blade(reference, repaired_surfaces, rpm: float, *, blade_angle_deg: 
                      removed, added, fig_ref, fig_rep, float(rpm), beta, reference.reference_radius_m, delta,
                      limits, (), tuple(warnings))
     if limits is not None:
-        from dataclasses import replace
-
         cmp = replace(cmp, checks=check_limits(limits, cmp.figures()))
     return cmp
 
