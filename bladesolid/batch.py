@@ -59,6 +59,8 @@ from dataclasses import dataclass
 
 from .errors import InputError, one_line
 
+__all__ = ["COLUMNS", "COMMANDS", "SUMMARY_SCHEMA", "BatchResult", "collect_jobs", "run_batch", "run_job"]
+
 COMMANDS = ("mass", "loads", "check")
 SUMMARY_SCHEMA = "bladesolid.batch/1"
 
@@ -111,11 +113,11 @@ def collect_jobs(inputs) -> list[str]:
     return unique
 
 
-def output_names(jobs) -> list[str]:
+def _output_names(jobs) -> list[str]:
     """A safe, unique output folder name per job: its file stem, with characters other than
     letters, digits, ``.``, ``_`` and ``-`` replaced, and ``-2``, ``-3``... on clashes.
 
-    >>> output_names(["a/blade 1.toml", "b/Blade 1.toml", "../.hidden.toml", "c/summary.toml"])
+    >>> _output_names(["a/blade 1.toml", "b/Blade 1.toml", "../.hidden.toml", "c/summary.toml"])
     ['blade_1', 'Blade_1-2', 'job_.hidden', 'summary']
     """
     names, used = [], set()
@@ -158,7 +160,7 @@ def run_job(job_path: str, options: dict) -> dict:
     """
     t0 = time.perf_counter()
     command = options.get("command", "loads")
-    name = options.get("name") or output_names([job_path])[0]
+    name = options.get("name") or _output_names([job_path])[0]
     folder = os.path.join(os.fspath(options["out"]), name)
     row = {c: None for c in COLUMNS}
     row.update(job=os.fspath(job_path), status=FAILED, output=None, host=socket.gethostname(), pid=os.getpid())
@@ -245,7 +247,7 @@ class BatchResult:
         return 1 if any(r["status"] == OUTSIDE for r in self.rows) else 0
 
 
-def local_client(workers: int):
+def _local_client(workers: int):
     """A dask Client on a LocalCluster of ``workers`` processes, one thread each."""
     import logging
 
@@ -282,7 +284,7 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
     if os.path.isdir(out):
         for p in (csv_path, json_path):
             report.check_new_output(p, force)
-    names = output_names(jobs)
+    names = _output_names(jobs)
     opts = [{"command": command, "out": out, "name": n, "force": force} for n in names]
 
     rows: list[dict | None] = [None] * len(jobs)
@@ -313,7 +315,7 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
                 where = scheduler
             else:
                 n = max(1, min(workers or os.cpu_count() or 1, len(jobs)))
-                own = client = local_client(n)
+                own = client = _local_client(n)
                 where = f"local cluster ({n} worker processes)"
         else:
             where = f"dask client ({getattr(client.scheduler, 'address', '?')})"

@@ -37,6 +37,11 @@ from .compare.transforms import apply_transform, rigid_matrix
 from .frame import rotation_about
 from .geometry import enclosed_volume
 
+__all__ = ["DEMO_DENSITY_KG_M3", "REPAIR_JOB", "REPAIR_LIMITS", "SCAN_ANGLE_DEG", "SCAN_AXIS", "SCAN_TRANSLATION_MM",
+           "blade_surface", "BladeParams", "chord_mm", "demo_variants", "designed_blade_angle_deg",
+           "geometric_pitch_mm", "large_blade_surface", "le_blend_depth_at", "rigid_transform", "scanned_variant",
+           "section_rings", "station_radii", "sweep_mm", "thickness_ratio", "write_demo", "write_demo_meshes"]
+
 #: Density of the demo blade material (a wrought high-strength aluminium alloy), kg/m³ — from memory.
 DEMO_DENSITY_KG_M3 = 2810.0
 

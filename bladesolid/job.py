@@ -19,6 +19,9 @@ import numpy as np
 
 from .errors import InputError
 
+__all__ = ["EXAMPLE_JOB", "KEYS", "build_job", "check_pitch_point", "CounterweightRequest", "hub_frame_of", "Job",
+           "load_job", "OperatingPoint", "range_points", "require_operating_points"]
+
 EXAMPLE_JOB = '''\
 # bladesolid job file: every key has the command-line flag of the same name
 # (pitch_axis <-> --pitch-axis); a flag given beside the job file overrides it.
@@ -109,9 +112,9 @@ KEYS: dict[str, str] = {
     "set": "",
 }
 
-OPERATING_KEYS = {"name", "rpm", "blade_angle", "pitch_change"}
-LUMPED_KEYS = {"name", "mass", "position"}
-COUNTERWEIGHT_KEYS = {"radius", "arm", "clocking", "blade_angle", "rpm", "target_ctm"}
+_OPERATING_KEYS = {"name", "rpm", "blade_angle", "pitch_change"}
+_LUMPED_KEYS = {"name", "mass", "position"}
+_COUNTERWEIGHT_KEYS = {"radius", "arm", "clocking", "blade_angle", "rpm", "target_ctm"}
 
 
 @dataclass(frozen=True)
@@ -170,10 +173,10 @@ class Job:
     set_reports: tuple = ()
 
 
-def parse_range(text, source: str, key: str) -> tuple[float, float, float]:
+def _parse_range(text, source: str, key: str) -> tuple[float, float, float]:
     """``"FROM:TO:STEP"`` (or a list of three numbers) → floats, checked.
 
-    >>> parse_range("-10:90:0.5", "job.toml", "sweep")
+    >>> _parse_range("-10:90:0.5", "job.toml", "sweep")
     (-10.0, 90.0, 0.5)
     """
     if isinstance(text, (list, tuple)):
@@ -203,10 +206,10 @@ def range_points(lo: float, hi: float, step: float, source: str = "range") -> np
     return lo + step * np.arange(n)
 
 
-def parse_vec3(text, source: str, key: str) -> tuple[float, float, float]:
+def _parse_vec3(text, source: str, key: str) -> tuple[float, float, float]:
     """``"X,Y,Z"`` or a list of three numbers → floats.
 
-    >>> parse_vec3("0,1,0", "--pitch-axis", "pitch axis")
+    >>> _parse_vec3("0,1,0", "--pitch-axis", "pitch axis")
     (0.0, 1.0, 0.0)
     """
     parts = text if isinstance(text, (list, tuple)) else str(text).split(",")
@@ -260,13 +263,6 @@ def _checked_tables(value, source: str, key: str, allowed: set, required: tuple)
                 raise InputError(where, f"missing required key {k!r}")
         out.append((where, t))
     return out
-
-
-def read_job_file(path) -> dict:
-    """Parse a TOML job file into a dict; a one-line error on any problem."""
-    from .io import read_toml
-
-    return read_toml(path, "job file")
 
 
 def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None = None) -> Job:
@@ -332,7 +328,7 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
     def vec(key, length=False):
         if key not in merged:
             return None
-        v = parse_vec3(merged[key], w(key), key)
+        v = _parse_vec3(merged[key], w(key), key)
         return tuple(x * scale for x in v) if length else v
 
     def opt_num(key, integer=False):
@@ -359,7 +355,7 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
     if "operating_point" in merged and "rpm" in from_flag:
         merged.pop("operating_point")  # --rpm replaces the job's operating points
     if "operating_point" in merged:
-        tables = _checked_tables(merged["operating_point"], source, "operating_point", OPERATING_KEYS, ("rpm",))
+        tables = _checked_tables(merged["operating_point"], source, "operating_point", _OPERATING_KEYS, ("rpm",))
         for i, (where, t) in enumerate(tables, 1):
             rpm = _num(t["rpm"], where, "rpm")
             if rpm < 0:
@@ -394,8 +390,8 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
             for o in ops
         ]
 
-    sweep = parse_range(merged["sweep"], w("sweep"), "sweep") if "sweep" in merged else (-10.0, 90.0, 1.0)
-    rpm_sweep = parse_range(merged["rpm_sweep"], w("rpm_sweep"), "rpm_sweep") if "rpm_sweep" in merged else None
+    sweep = _parse_range(merged["sweep"], w("sweep"), "sweep") if "sweep" in merged else (-10.0, 90.0, 1.0)
+    rpm_sweep = _parse_range(merged["rpm_sweep"], w("rpm_sweep"), "rpm_sweep") if "rpm_sweep" in merged else None
 
     stations = merged.get("stations", 16)
     if isinstance(stations, str):
@@ -427,13 +423,13 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
 
     lumped = []
     if "lumped_mass" in merged:
-        tables = _checked_tables(merged["lumped_mass"], source, "lumped_mass", LUMPED_KEYS, ("mass", "position"))
+        tables = _checked_tables(merged["lumped_mass"], source, "lumped_mass", _LUMPED_KEYS, ("mass", "position"))
         for i, (where, t) in enumerate(tables, 1):
             nm = t.get("name", f"lumped mass {i}")
             if not isinstance(nm, str):
                 raise InputError(where, f"name must be a string, got {nm!r}")
             mass = parse_mass(t["mass"], where)
-            pos = tuple(x * scale for x in parse_vec3(t["position"], where, "position"))
+            pos = tuple(x * scale for x in _parse_vec3(t["position"], where, "position"))
             lumped.append((nm, mass, pos))
 
     cw = None
@@ -443,8 +439,8 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
         if not isinstance(t, dict):
             raise InputError(where, "must be a table ([counterweight])")
         for k in t:
-            if k not in COUNTERWEIGHT_KEYS:
-                raise InputError(where, f"unknown key {k!r}; expected {', '.join(sorted(COUNTERWEIGHT_KEYS))}")
+            if k not in _COUNTERWEIGHT_KEYS:
+                raise InputError(where, f"unknown key {k!r}; expected {', '.join(sorted(_COUNTERWEIGHT_KEYS))}")
         for k in ("radius", "arm", "clocking"):
             if k not in t:
                 raise InputError(where, f"missing required key {k!r}")
@@ -506,8 +502,9 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
 
 def load_job(path, flags: dict | None = None) -> Job:
     """Read and validate a job file, with command-line flags overriding its keys."""
-    data = read_job_file(path)
-    return build_job(data, str(path), os.path.dirname(os.path.abspath(str(path))), flags)
+    from .io import read_toml
+
+    return build_job(read_toml(path, "job file"), str(path), os.path.dirname(os.path.abspath(str(path))), flags)
 
 
 def require_operating_points(job: Job) -> tuple[OperatingPoint, ...]:

@@ -22,6 +22,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+__all__ = ["ElementMoments", "inertia_from_second", "Moments", "moved", "point_mass", "relative_difference",
+           "surface_volume_moments", "tet_volume_moments", "tet_volume_moments_numpy", "zero_moments"]
+
 # --------------------------------------------------------------------------------------
 # numba kernels (compiled on first use, cached on disk)
 # --------------------------------------------------------------------------------------

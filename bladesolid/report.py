@@ -17,6 +17,11 @@ import numpy as np
 from . import CAUTION, __version__
 from .safefile import atomic_write_bytes, atomic_write_text, check_new_output, staged_folder  # noqa: F401
 
+__all__ = ["LOAD_FIGURES", "SCHEMA", "atomic_write_bytes", "atomic_write_text", "base_report", "blade_angle_section",
+           "check_new_output", "compare_report", "csv_text", "dumps", "header", "jsonable", "load_figures",
+           "mass_report", "mass_section", "match_report", "operating_point_row", "review_html", "span_report",
+           "staged_folder", "sweep_rows"]
+
 SCHEMA = "bladesolid.report/1"
 
 

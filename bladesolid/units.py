@@ -12,6 +12,9 @@ import math
 
 from .errors import InputError
 
+__all__ = ["CUSTOMARY", "INCH", "LB", "LBF", "LENGTH_UNITS", "length_scale", "parse_density", "parse_mass",
+           "parse_moment", "parse_quantity", "parse_stress", "rpm_to_rad_s", "to_customary", "unit_label"]
+
 #: Metres per declared model length unit (exact definitions: 1 in = 25.4 mm, 1 ft = 12 in).
 LENGTH_UNITS: dict[str, float] = {
     "mm": 1e-3,

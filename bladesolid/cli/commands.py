@@ -24,16 +24,27 @@ __all__ = ["cmd_batch", "cmd_check", "cmd_compare", "cmd_demo", "cmd_loads", "cm
            "cmd_materials", "cmd_span", "cmd_view"]
 
 
+def _blade(args, *, elements: bool, speed: bool = True):
+    """(job, blade, stderr console): the validated job of the arguments (with an operating
+    point when ``speed``) and its blade, loaded with the stages shown and its warnings printed."""
+    from .. import api
+
+    job = job_of(args)
+    if speed:
+        require_operating_points(job)
+    err = printing.console(stderr=True)
+    blade = api.blade_from_job(job, elements=elements, progress=printing.progress(err))
+    printing.warn(err, blade)
+    return job, blade, err
+
+
 def cmd_mass(args) -> int:
     """Mass, CG, inertia tensors and static moment."""
-    from .. import api, report
+    from .. import report
 
     check_outputs(args.force, args.json)
-    job = job_of(args)
-    err = printing.console(stderr=True)
-    blade = api.blade_from_job(job, elements=args.check_elements, progress=printing.progress(err))
-    printing.warn(err, blade)
-    props = api.mass_properties(blade)
+    _, blade, err = _blade(args, elements=args.check_elements, speed=False)
+    props = blade.mass_properties()
     if not props.surface_check_ok:
         err.print(f"[yellow]warning:[/yellow] the two independent routes to the moments disagree by "
                   f"{props.surface_check_rel_error:.1e} ({props.surface_check_method}); the surface may be "
@@ -50,11 +61,7 @@ def cmd_loads(args) -> int:
     from ..review import loads_report
 
     check_outputs(args.force, args.json, args.csv, args.plot, args.rpm_csv, args.rpm_plot)
-    job = job_of(args)
-    require_operating_points(job)
-    err = printing.console(stderr=True)
-    blade = api.blade_from_job(job, elements=False, progress=printing.progress(err))
-    printing.warn(err, blade)
+    job, blade, _ = _blade(args, elements=False)
     ops = api.loads_for_job(blade, job)
     data = loads_report(blade, job, ops)
     if (args.rpm_csv or args.rpm_plot) and "rpm_sweep" not in data:
@@ -131,14 +138,12 @@ def cmd_demo(args) -> int:
 
 def cmd_view(args) -> int:
     """Open an interactive 3-D window of one per-element field (needs a display)."""
-    from .. import api, fields, views
+    from .. import fields, views
 
     if not views.has_display():
         raise InputError("view", "no display to open a window on (DISPLAY is not set); the PNG renders of "
                                  "`bladesolid check` show the same fields")
-    job = job_of(args)
-    require_operating_points(job)
-    blade = api.blade_from_job(job, elements=True, progress=printing.progress(printing.console(stderr=True)))
+    job, blade, _ = _blade(args, elements=True)
     op = job.operating_points[0]
     f = blade.fields(op.rpm, op.blade_angle_deg, op.pitch_change_deg)
     views.render_field(blade, f, args.field, None, view=args.view, hotspots=fields.hot_spots(blade, f))
@@ -155,15 +160,11 @@ def cmd_materials(args) -> int:
 
 def cmd_span(args) -> int:
     """Spanwise table: exact station cuts, section properties, centrifugal tension and stress."""
-    from .. import api, report
+    from .. import report
     from ..span import SPAN_NOTE, plot_span, spanwise_rows
 
     check_outputs(args.force, args.json, args.csv, args.plot)
-    job = job_of(args)
-    require_operating_points(job)
-    err = printing.console(stderr=True)
-    blade = api.blade_from_job(job, elements=True, progress=printing.progress(err))
-    printing.warn(err, blade)
+    job, blade, _ = _blade(args, elements=True)
     op = job.operating_points[0]
     table = blade.span(op.rpm, op.blade_angle_deg, op.pitch_change_deg, stations=job.stations,
                        allowable_Pa=job.allowable_Pa)

@@ -8,7 +8,6 @@ kept balanced second (all (N−1)! assignments up to 8 blades, a seeded local se
 from __future__ import annotations
 
 import itertools
-import json
 import math
 import os
 from dataclasses import dataclass
@@ -110,19 +109,10 @@ def set_blade_from_report(data, source: str) -> SetBlade:
 
 def read_set_report(path) -> SetBlade:
     """:func:`set_blade_from_report` of a JSON report file."""
+    from ..io import read_json
+
     p = os.fspath(path)
-    if not os.path.isfile(p):
-        raise InputError(p, "report file not found")
-    if os.path.getsize(p) > 200_000_000:
-        raise InputError(p, "larger than 200 MB; is it really a bladesolid report?")
-    try:
-        with open(p, encoding="utf-8") as fh:
-            data = json.load(fh)
-    except json.JSONDecodeError as exc:
-        raise InputError(p, f"not valid JSON ({exc.msg} at line {exc.lineno})") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise InputError(p, f"cannot be read ({exc})") from None
-    return set_blade_from_report(data, p)
+    return set_blade_from_report(read_json(p, "report file", 200_000_000), p)
 
 
 @dataclass(frozen=True)

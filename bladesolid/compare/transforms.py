@@ -112,10 +112,9 @@ def read_transform(path, *, default_units: str = "m") -> np.ndarray:
     p = os.fspath(path)
     if str(p).strip().lower() == "identity":
         return np.eye(4)
-    if not os.path.isfile(p):
-        raise InputError(p, "transform file not found (give a file with a 4x4 matrix, or 'identity')")
-    if os.path.getsize(p) > 1_000_000:
-        raise InputError(p, "a transform file is a few hundred bytes; this one is larger than 1 MB")
+    from ..io import check_input_file
+
+    check_input_file(p, "transform file", 1_000_000, " (give a file with a 4x4 matrix, or 'identity')")
     ext = os.path.splitext(p)[1].lower()
     units = default_units
     try:

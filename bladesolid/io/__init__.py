@@ -53,7 +53,7 @@ guards        file checks, parser boundary (memory cap, quiet), end-of-file guar
 surfaces      STL / OBJ / PLY / OFF to raw arrays; :func:`write_surface`
 volumes       ``.msh`` / ``.vtu`` / ``.inp`` tetrahedra to bodies
 checks        arrays, faces, edges, shells, tetrahedra, overlaps between bodies, size
-tomlfiles     :func:`read_toml` for the small input files (job, limits, transform)
+inputs        the small input files (job, limits, transform, reports): :func:`read_toml`, :func:`read_json`
 ============  ==================================================================
 
 Hostile input: binary STL sizes are checked from the header; third-party parsers run with a
@@ -66,8 +66,9 @@ from .checks import MAX_BODIES, manifold_solid, merge_coincident
 from .guards import DEFAULT_MAX_BYTES
 from .reader import Body, LoadedMesh, read_mesh
 from .surfaces import SURFACE_FORMATS, write_surface
-from .tomlfiles import read_toml
+from .inputs import check_input_file, read_json, read_toml
 from .volumes import VOLUME_FORMATS
 
 __all__ = ["DEFAULT_MAX_BYTES", "MAX_BODIES", "SURFACE_FORMATS", "VOLUME_FORMATS", "Body", "LoadedMesh",
-           "manifold_solid", "merge_coincident", "read_mesh", "read_toml", "write_surface"]
+           "check_input_file", "manifold_solid", "merge_coincident", "read_json", "read_mesh", "read_toml",
+           "write_surface"]

@@ -14,7 +14,7 @@ from ..geometry import orient_positive, origin_tet_volumes, tet_signed_volumes
 from ..units import LENGTH_UNITS
 
 __all__ = ["DEGENERATE_AREA_REL", "MAX_BODIES", "MAX_COORDINATE_M", "OVERLAP_REL", "PLAUSIBLE_LENGTH_M",
-           "ZERO_TET_REL", "ZERO_VOLUME_REL", "check_arrays", "check_edges", "check_overlaps", "components",
+           "ZERO_TET_REL", "ZERO_VOLUME_REL", "check_arrays", "check_body_count", "check_edges", "check_overlaps", "components",
            "manifold_solid", "merge_coincident", "orient_tets", "plausibility_warning", "reindex", "surface_bodies",
            "tet_faces", "where"]
 
@@ -47,13 +47,7 @@ def surface_bodies(source, vertices, faces, unit, warnings, part=None):
     _check_degenerate(source, vertices, faces, unit)
     pairs = check_edges(source, vertices, faces, unit)
     labels = components(len(faces), pairs[0], pairs[1])
-    count = int(labels.max()) + 1
-    if count > MAX_BODIES:
-        raise InputError(
-            source,
-            f"has {count} separate closed shells, more than the {MAX_BODIES} accepted; "
-            "a blade file holds the blade and a few parts (sheath, inserts)",
-        )
+    count = check_body_count(source, labels, "separate closed shells")
     centre = 0.5 * (vertices.min(axis=0) + vertices.max(axis=0))
     vol = np.bincount(labels, weights=origin_tet_volumes(vertices, faces, centre), minlength=count)
     bodies = []
@@ -77,6 +71,18 @@ def surface_bodies(source, vertices, faces, unit, warnings, part=None):
             )
         bodies.append((vk, fk, None, abs(float(vol[k])), first, ""))
     return bodies
+
+
+def check_body_count(source, labels: np.ndarray, what: str) -> int:
+    """The number of bodies of per-element body ``labels`` (0..), refused above :data:`MAX_BODIES`."""
+    count = int(labels.max()) + 1
+    if count > MAX_BODIES:
+        raise InputError(
+            source,
+            f"has {count} {what}, more than the {MAX_BODIES} accepted; "
+            "a blade file holds the blade and a few parts (sheath, inserts)",
+        )
+    return count
 
 
 def check_arrays(source, vertices, faces, unit):
@@ -195,15 +201,28 @@ def _edge_table(faces: np.ndarray, n_vertices: int):
     b = faces[:, [1, 2, 0]].ravel()
     lo = np.minimum(a, b)
     hi = np.maximum(a, b)
-    key = lo * np.int64(n_vertices) + hi
-    order = np.argsort(key)
-    sk = key[order]
-    brk = np.empty(len(sk), dtype=bool)
-    brk[:1] = True
-    brk[1:] = sk[1:] != sk[:-1]
-    starts = np.flatnonzero(brk)
-    counts = np.diff(np.append(starts, len(sk)))
+    order, starts, counts = _runs(lo * np.int64(n_vertices) + hi)
     return order, starts, counts, a < b
+
+
+def _runs(keys: np.ndarray):
+    """Group equal rows of ``keys`` ((k,) or (k, c) int): ``(order, starts, counts)`` where
+    ``order`` sorts the rows so that equal ones are adjacent and ``starts``/``counts`` delimit
+    each run of equal rows along ``order``.
+
+    >>> [a.tolist() for a in _runs(np.array([5, 3, 5, 1]))]
+    [[3, 1, 0, 2], [0, 1, 2], [1, 1, 2]]
+    """
+    if keys.ndim == 1:
+        order = np.argsort(keys)
+        sk = keys[order]
+        differs = sk[1:] != sk[:-1]
+    else:
+        order = np.lexsort(keys.T[::-1])
+        sk = keys[order]
+        differs = (sk[1:] != sk[:-1]).any(axis=1)
+    starts = np.flatnonzero(np.concatenate([[True], differs])) if len(keys) else np.zeros(0, dtype=np.int64)
+    return order, starts, np.diff(np.append(starts, len(order)))
 
 
 def check_edges(source, vertices, faces, unit, what="surface"):
@@ -342,21 +361,8 @@ def tet_faces(source, points, tets, unit):
     f = tets[:, _TET_FACES].reshape(-1, 3)
     s = np.sort(f, axis=1)
     n = np.int64(len(points))
-    if len(points) <= 2_000_000:
-        key = (s[:, 0] * n + s[:, 1]) * n + s[:, 2]
-        order = np.argsort(key)
-        sk = key[order]
-        brk = np.empty(len(sk), dtype=bool)
-        brk[:1] = True
-        brk[1:] = sk[1:] != sk[:-1]
-    else:
-        order = np.lexsort((s[:, 2], s[:, 1], s[:, 0]))
-        ss = s[order]
-        brk = np.empty(len(ss), dtype=bool)
-        brk[:1] = True
-        brk[1:] = (ss[1:] != ss[:-1]).any(axis=1)
-    starts = np.flatnonzero(brk)
-    counts = np.diff(np.append(starts, len(order)))
+    # one int64 key per face while it cannot overflow (n³ < 2⁶³), else the three indices
+    order, starts, counts = _runs((s[:, 0] * n + s[:, 1]) * n + s[:, 2] if len(points) <= 2_000_000 else s)
     many = counts > 2
     if many.any():
         pts = points[f[order[starts[many]]].ravel()]

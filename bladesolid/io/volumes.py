@@ -15,7 +15,7 @@ import io as _io
 import numpy as np
 
 from ..errors import InputError
-from .checks import MAX_BODIES, check_arrays, check_edges, components, orient_tets, reindex, surface_bodies, tet_faces
+from .checks import check_arrays, check_body_count, check_edges, components, orient_tets, reindex, surface_bodies, tet_faces
 from .guards import GuardedBinary, GuardedText, guard_keyword_deck, parser_boundary, reason
 
 __all__ = ["VOLUME_FORMATS", "read_meshio", "volume_bodies"]
@@ -119,12 +119,7 @@ def volume_bodies(source, ext, size, unit, warnings):
         names = {}
     else:
         labels, names = groups
-    count = int(labels.max()) + 1
-    if count > MAX_BODIES:
-        raise InputError(
-            source,
-            f"has {count} separate bodies, more than the {MAX_BODIES} accepted",
-        )
+    count = check_body_count(source, labels, "separate bodies")
     bodies = []
     for k in range(count):
         sel = labels == k
