@@ -9,8 +9,6 @@ from bladesolid import api, views
 from bladesolid.errors import OutputExistsError
 from bladesolid.fields import REGIONS, element_fields, hot_spots
 
-pytest.importorskip("pyvista")
-
 SMALL = (400, 300)
 RPM = 2500.0
 
