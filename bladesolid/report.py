@@ -249,7 +249,7 @@ def csv_text(rows: list[dict], columns: list[str] | None = None) -> str:
 # --- HTML ---------------------------------------------------------------------------------
 
 _CSS = """
-body{font-family:system-ui,-apple-system,'Segoe UI',Roboto,sans-serif;margin:0;color:#1d2329;background:#f6f7f4}
+body{font-family:system-ui,sans-serif;margin:0;color:#1d2329;background:#f6f7f4}
 header{background:#21413c;color:#f4f1e8;padding:18px 32px}
 header h1{margin:0;font-size:22px;font-weight:600}
 header p{margin:4px 0 0;font-size:13px;opacity:.85}

@@ -112,7 +112,7 @@ def check_arrays(source, vertices, faces, unit):
         raise InputError(
             source,
             f"coordinates reach {reach:.3g} {unit}, more than {MAX_COORDINATE_M / 1000:.0f} km "
-            "from the origin; this cannot be a blade (corrupt file or wrong --units?)",
+            "from the origin; this cannot be a blade (a corrupt file, or the wrong length unit declared?)",
         )
     return vertices, faces
 
