@@ -165,7 +165,7 @@ class Blade:
         (needs the mass elements)."""
         from .fields import element_fields
 
-        return element_fields(self, rpm, resolve_blade_angle(self, blade_angle_deg, pitch_change_deg))
+        return element_fields(self, rpm, blade_angle_deg, pitch_change_deg=pitch_change_deg)
 
     def compare(self, repaired, rpm: float, blade_angle_deg: float | None = None,
                 pitch_change_deg: float | None = None, *, units: str | None = None, limits=None, **options):

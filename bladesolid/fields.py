@@ -271,19 +271,22 @@ def _element_volumes(nodes: np.ndarray, tets: np.ndarray) -> np.ndarray:
 
 
 def element_fields(blade, rpm: float, blade_angle_deg: float | None = None, *,
-                   levels=SHARE_LEVELS) -> ElementFields:
+                   pitch_change_deg: float | None = None, levels=SHARE_LEVELS) -> ElementFields:
     """Per-element mass, radial pull and CTM of a meshed blade at ``rpm`` and a blade angle.
 
     blade : a :class:`bladesolid.api.Blade` with elements (``elements``, ``element_nodes``,
       ``element_tets``, ``element_body``, ``frame``, ``modelled_deg``, ``lumped``)
-    blade_angle_deg : absolute blade angle, degrees (None: the modelled angle)
+    blade_angle_deg / pitch_change_deg : as :func:`bladesolid.api.resolve_blade_angle`
+      (default: the modelled blade angle)
     levels : percent levels of the share bands
     """
     if blade.elements is None:
         raise ValueError(f"{blade.source}: the blade was loaded without mass elements; load it with elements=True")
+    from .api import resolve_blade_angle  # the semantics of the documented API, written once
+
     frame = blade.frame
     modelled = float(blade.modelled_deg)
-    beta = modelled if blade_angle_deg is None else float(blade_angle_deg)
+    beta = resolve_blade_angle(blade, blade_angle_deg, pitch_change_deg)
     delta = beta - modelled
     omega = rpm_to_rad_s(rpm)
     el = blade.elements

@@ -43,7 +43,7 @@ CUSTOMARY: dict[str, tuple[str, str, float]] = {
 }
 
 
-def length_scale(unit: str, source: str = "--units") -> float:
+def length_scale(unit: str, source: str = "unit") -> float:
     """Metres per model unit for a declared length unit.
 
     >>> length_scale("mm")
@@ -142,7 +142,7 @@ def parse_quantity(text, si_unit: str, source: str, what: str, signed: bool = Fa
     return value
 
 
-def parse_density(text, source: str = "--density") -> float:
+def parse_density(text, source: str = "density") -> float:
     """Density in kg/m³ from a quantity with its unit or a bare number in kg/m³."""
     return parse_quantity(text, "kg/m^3", source, "density")
 

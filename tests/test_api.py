@@ -57,7 +57,8 @@ def test_methods_are_the_functions(bar):
     t = span_table(bar, 1500, stations=4, pitch_change_deg=20.0)
     assert np.array_equal(s.cf_outboard_N, t.cf_outboard_N) and np.array_equal(s.ctm_outboard_Nm, t.ctm_outboard_Nm)
     f = bar.fields(1500, pitch_change_deg=20.0)
-    g = element_fields(bar, 1500, bar.modelled_deg + 20.0)
+    g = element_fields(bar, 1500, pitch_change_deg=20.0)
+    assert np.array_equal(g.ctm_Nm, element_fields(bar, 1500, bar.modelled_deg + 20.0).ctm_Nm)
     assert np.array_equal(f.ctm_Nm, g.ctm_Nm)
     # the per-element CTM adds up to the blade's own at the same angle
     assert f.ctm_Nm.sum() == pytest.approx(a.ctm_Nm, rel=1e-9, abs=1e-12)

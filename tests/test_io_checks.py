@@ -15,16 +15,7 @@ import trimesh
 
 from bladesolid.io import merge_coincident, read_mesh
 
-from .iohelp import (
-    box,
-    box_arrays,
-    refused,
-    sphere,
-    stl,
-    surface_volume,
-    tets,
-    write_surface_as,
-)
+from .iohelp import box, box_arrays, refused, sphere, stl, surface_volume, tets, write_surface_as
 
 
 def test_inside_out_body_is_flipped_with_warning(tmp_path):

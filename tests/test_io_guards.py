@@ -9,13 +9,7 @@ from __future__ import annotations
 import meshio
 import pytest
 
-from .iohelp import (
-    EXTENSIONS,
-    box_arrays,
-    refused,
-    stl,
-    tets,
-)
+from .iohelp import EXTENSIONS, box_arrays, refused, stl, tets
 
 
 def test_missing_file(tmp_path):

@@ -18,15 +18,7 @@ from hypothesis import strategies as st
 from bladesolid.errors import InputError
 from bladesolid.io import read_mesh
 
-from .iohelp import (
-    EXTENSIONS,
-    box,
-    refused,
-    sphere,
-    surface_volume,
-    tets,
-    write_surface_as,
-)
+from .iohelp import EXTENSIONS, box, refused, sphere, surface_volume, tets, write_surface_as
 
 
 def test_units_scaling_1000_mm_cube_is_1_m(tmp_path):

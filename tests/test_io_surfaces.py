@@ -15,16 +15,7 @@ import trimesh
 
 from bladesolid.io import LoadedMesh, read_mesh
 
-from .iohelp import (
-    SURFACE_KINDS,
-    box,
-    box_arrays,
-    refused,
-    sphere,
-    stl,
-    surface_volume,
-    write_surface_as,
-)
+from .iohelp import SURFACE_KINDS, box, box_arrays, refused, sphere, stl, surface_volume, write_surface_as
 
 
 @pytest.mark.parametrize("kind", list(SURFACE_KINDS))

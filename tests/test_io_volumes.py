@@ -13,17 +13,7 @@ import pytest
 from bladesolid.errors import InputError
 from bladesolid.io import read_mesh
 
-from .iohelp import (
-    VOLUME_WRITERS,
-    box,
-    refused,
-    sphere,
-    surface_volume,
-    tet_meshio,
-    tet_volume,
-    tetrahedralise,
-    tets,
-)
+from .iohelp import VOLUME_WRITERS, box, refused, sphere, surface_volume, tet_meshio, tet_volume, tetrahedralise, tets
 
 
 @pytest.mark.parametrize("kind", list(VOLUME_WRITERS))

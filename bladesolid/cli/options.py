@@ -20,6 +20,8 @@ PARAMETER_FLAGS = {
     "blade_angle_deg": "--blade-angle",
     "pitch_change_deg": "--pitch-change",
     "densities": "--density",
+    "density": "--density",
+    "unit": "--units",
     "lo_deg:hi_deg:step_deg": "--sweep",
     "command": "--command",
 }

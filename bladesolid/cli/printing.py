@@ -105,6 +105,7 @@ def stage_progress(con):
 
 
 def print_mass(con, blade, props, us):
+    """The mass properties table of a blade (hub frame), then the caution."""
     from rich.table import Table
 
     cv, lab = conv(us)
@@ -183,6 +184,7 @@ def print_loads(con, blade, data, us):
 
 
 def print_span(con, blade, table, rows, op, us):
+    """The spanwise table at one operating point, the strip-estimate comparison and the notes."""
     from rich.table import Table
 
     from ..span import SPAN_NOTE
@@ -232,6 +234,7 @@ def print_span(con, blade, table, rows, op, us):
 
 
 def print_compare(con, c, us):
+    """A comparison: registration, deviation, volumes, the figures of both blades, limits, verdict."""
     from rich.table import Table
 
     from ..compare import LIMITS_NOTE, limit_value_text, rotation_angle_deg
@@ -304,6 +307,7 @@ def print_compare(con, c, us):
 
 
 def print_match(con, s, us):
+    """A blade-set match (the ``match`` section of the report): the blades, best and worst assignment."""
     from rich.table import Table
 
     from ..units import CUSTOMARY
