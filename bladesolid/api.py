@@ -1,29 +1,40 @@
 """The documented Python API of bladesolid; the command line is a thin layer over it.
 
-Typical use::
+A :class:`Blade` is the thing to hold (in a notebook, a script, a batch task): it is loaded once
+(:func:`load_blade`, :func:`blade_from_job`), and every figure is a method that delegates to
+the function of the same job::
 
-    from bladesolid import api
-    blade = api.load_blade("meshes/demo_blade.stl", units="mm", densities=["2810 kg/m^3"])
-    props = api.mass_properties(blade)
-    op = api.loads_at(blade, rpm=2500, blade_angle_deg=30.0)
-    print(props.mass_kg, op.ctm_Nm)
+    from bladesolid import load_blade
+    blade = load_blade("meshes/demo_blade.stl", units="mm", densities=["2810 kg/m^3"])
+    blade.mass_properties().mass_kg        # mass_properties(blade)
+    blade.loads(2500, blade_angle_deg=30.0)  # loads_at(blade, 2500, 30.0)
+    blade.pitch_sweep(2500, -10, 90, 1)    # pitch_sweep(...)
+    blade.span(2500), blade.fields(2500)   # bladesolid.span.span_table, bladesolid.fields.element_fields
+    blade.compare("repaired.stl", 2500)    # bladesolid.compare.compare_blade
 
-All results are SI, in the hub frame (docs/CONVENTIONS.md §1), as frozen dataclasses.
+All results are SI, in the hub frame (docs/CONVENTIONS.md §1), as frozen dataclasses. Errors
+are :class:`~bladesolid.errors.InputError` naming the file or the parameter
+(``blade_angle_deg``) and the problem in one line.
 """
 
 from __future__ import annotations
 
 import functools
 import math
-from dataclasses import dataclass, field
+import os
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from .errors import InputError
+from .errors import InputError, one_line
 from .frame import BladeAngle, HubFrame, hub_frame, measure_blade_angle
 from .loads import CtmCurve, OperatingLoads, ctm_curve, operating_loads, static_moment
 from .moments import ElementMoments, Moments, point_mass, relative_difference, zero_moments
 from .units import rpm_to_rad_s
+
+__all__ = ["DEFAULT_FIELD_FACES", "SURFACE_CHECK_TOLERANCE", "Blade", "BodyMaterial", "LumpedMass", "MassProperties",
+           "blade_from_job", "blade_from_surfaces", "load_blade", "loads_at", "loads_for_job", "mass_properties",
+           "pitch_sweep", "principal_axes", "resolve_blade_angle", "resolve_materials", "surface_check"]
 
 
 @dataclass(frozen=True)
@@ -47,9 +58,13 @@ class BodyMaterial:
     source: str = ""
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, repr=False)
 class Blade:
     """A blade ready for analysis. Geometry and moments are in the hub frame, SI.
+
+    Its figures are methods (:meth:`mass_properties`, :meth:`loads`, :meth:`pitch_sweep`,
+    :meth:`span`, :meth:`fields`, :meth:`compare`), each delegating to the function of the
+    same job.
 
     surfaces : per body (vertices (n, 3) m, faces (m, 3)), hub frame
     body_moments : per body mass moments from its closed surface (density applied)
@@ -114,10 +129,69 @@ class Blade:
 
     @property
     def volume_m3(self) -> float:
+        """Volume of the bodies, m³ (from their closed surfaces)."""
         return float(sum(abs(m.mass) / mat.density_kg_m3 for m, mat in zip(self.body_moments, self.materials)))
 
+    def __repr__(self) -> str:
+        elements = "none" if self.elements is None else f"{len(self.elements):,}"
+        return (f"Blade({one_line(self.name, 60)!r}, mass {self.moments.mass:.6g} kg, bodies {len(self.surfaces)}, "
+                f"elements {elements}, units {self.units!r})")
 
-def resolve_materials(specs, n_bodies: int, source: str = "--density") -> tuple[BodyMaterial, ...]:
+    # --- the figures, each from the function of the same job --------------------------------
+
+    def mass_properties(self) -> MassProperties:
+        """:func:`mass_properties` of this blade."""
+        return mass_properties(self)
+
+    def loads(self, rpm: float, blade_angle_deg: float | None = None, pitch_change_deg: float | None = None,
+              name: str = "") -> OperatingLoads:
+        """:func:`loads_at`: the centrifugal loads at ``rpm`` and a blade angle (absolute, or a
+        change from the modelled one; default: as modelled)."""
+        return loads_at(self, rpm, blade_angle_deg, pitch_change_deg, name=name)
+
+    def pitch_sweep(self, rpm: float, lo_deg: float, hi_deg: float, step_deg: float):
+        """:func:`pitch_sweep`: (β deg, CTM N·m, pitch stiffness N·m/rad) over a blade-angle range."""
+        return pitch_sweep(self, rpm, lo_deg, hi_deg, step_deg)
+
+    def span(self, rpm: float, blade_angle_deg: float | None = None, pitch_change_deg: float | None = None, *,
+             stations=16, allowable_Pa: float | None = None):
+        """:func:`bladesolid.span.span_table`: the spanwise table (needs the mass elements)."""
+        from .span import span_table
+
+        return span_table(self, rpm, blade_angle_deg, stations, allowable_Pa, pitch_change_deg=pitch_change_deg)
+
+    def fields(self, rpm: float, blade_angle_deg: float | None = None, pitch_change_deg: float | None = None):
+        """:func:`bladesolid.fields.element_fields`: per-element mass, radial pull and CTM
+        (needs the mass elements)."""
+        from .fields import element_fields
+
+        return element_fields(self, rpm, blade_angle_deg, pitch_change_deg=pitch_change_deg)
+
+    def compare(self, repaired, rpm: float, blade_angle_deg: float | None = None,
+                pitch_change_deg: float | None = None, *, units: str | None = None, limits=None, **options):
+        """:func:`bladesolid.compare.compare_blade` with this blade as the reference.
+
+        repaired : a mesh file (read in ``units``, default this blade's) or its surfaces
+          ``[(vertices (n, 3) m, faces (m, 3)), ...]`` in their own frame
+        limits : a limits file or :class:`bladesolid.compare.Limits` (None: nothing checked)
+        options : the keywords of :func:`~bladesolid.compare.compare_blade` (``transform``, ...)
+        """
+        from .compare import compare_blade, read_limits
+
+        if isinstance(repaired, (str, os.PathLike)):
+            from .io import read_mesh
+
+            path = os.fspath(repaired)
+            repaired = [(b.vertices, b.faces) for b in read_mesh(path, units or self.units).bodies]
+            options.setdefault("repaired_source", path)
+            options.setdefault("repaired_name", os.path.basename(path))
+        if isinstance(limits, (str, os.PathLike)):
+            limits = read_limits(limits)
+        return compare_blade(self, repaired, rpm, blade_angle_deg=blade_angle_deg, pitch_change_deg=pitch_change_deg,
+                             limits=limits, **options)
+
+
+def resolve_materials(specs, n_bodies: int, source: str = "densities") -> tuple[BodyMaterial, ...]:
     """Densities for ``n_bodies`` bodies from a list of ``("density", text)`` or
     ``("material", name)`` specs: one spec for all bodies, or one per body in order."""
     from .materials import material
@@ -125,7 +199,7 @@ def resolve_materials(specs, n_bodies: int, source: str = "--density") -> tuple[
 
     specs = list(specs or [])
     if not specs:
-        raise InputError(source, "no density given: use --density \"2810 kg/m^3\" or --material NAME")
+        raise InputError(source, "no density given: give a density with its unit (\"2810 kg/m^3\") or a material name")
     if len(specs) not in (1, n_bodies):
         raise InputError(source, f"{len(specs)} densities given for {n_bodies} bodies; give one, or one per body")
     out = []
@@ -190,7 +264,6 @@ def load_blade(
     """
     from .frame import check_angle_line
     from .io import read_mesh
-    from .moments import surface_volume_moments, tet_volume_moments
 
     check_angle_line(angle_line)
     say = progress or (lambda stage: None)
@@ -198,7 +271,6 @@ def load_blade(
     say("load")
     loaded = read_mesh(path, units)
     bodies = loaded.bodies
-    warnings = list(loaded.warnings)
     if densities is not None and not isinstance(densities, (list, tuple)):
         densities = [densities]
     specs = [d if isinstance(d, tuple) else ("density", d) for d in (densities or [])]
@@ -209,75 +281,78 @@ def load_blade(
         R, t = R @ T[:3, :3], R @ T[:3, 3] + t
     surfaces = tuple((b.vertices @ R.T + t, np.asarray(b.faces, dtype=np.int64)) for b in bodies)
     say("integrate surface")
-    body_moments = tuple(
-        surface_volume_moments(v, f).scaled(mat.density_kg_m3) for (v, f), mat in zip(surfaces, mats)
+    blade = blade_from_surfaces(
+        surfaces, mats, frame, lumped=lumped, reference_radius_m=reference_radius_m,
+        reference_fraction=reference_fraction, name=name or str(path).replace("\\", "/").rsplit("/", 1)[-1],
+        source=str(path), units=units, warnings=loaded.warnings, angle_line=angle_line,
     )
-    lm = zero_moments()
+    if all(b.tets is not None for b in bodies):
+        elements = True  # a volume mesh brings its elements: no meshing, so always use them
+    if not elements:
+        return blade
+    from .mesh import mass_elements
+    from .moments import tet_volume_moments
+
+    say("mesh")
+    warnings = list(blade.warnings)
+    hub_bodies = [type(b)(b.name, v, f, b.tets) for b, (v, f) in zip(bodies, surfaces)]
+    limit = DEFAULT_FIELD_FACES if field_faces is None else int(field_faces)
+    field_info = None
+    if any(b.tets is None and len(b.faces) > limit for b in hub_bodies):
+        volumes = [abs(m.mass) / mat.density_kg_m3 for m, mat in zip(blade.body_moments, mats)]
+        hub_bodies, field_info = _field_copies(hub_bodies, volumes, limit)
+        warnings.append(
+            f"element fields on a simplified copy ({field_info['faces_field']} of {field_info['faces_full']} "
+            f"faces, volume change {field_info['volume_change']:+.2e}); mass, tensor and loads stay exact from "
+            "the full surface (give --field-faces to change)"
+        )
+    tm = mass_elements(hub_bodies, max_volume=max_element_volume_m3, target_elements=target_elements, source=str(path))
+    say("integrate elements")
+    vol = tet_volume_moments(tm.nodes, tm.tets)
+    rho = np.array([m.density_kg_m3 for m in mats])[tm.body]
+    el = ElementMoments(vol.mass * rho, vol.first * rho[:, None], vol.second * rho[:, None, None])
+    if field_info is not None:
+        field_info["moments_rel_difference"] = relative_difference(el.total(), blade.surface_moments)
+    return replace(blade, elements=el, element_nodes=tm.nodes, element_tets=tm.tets, element_body=tm.body,
+                   field_resolution=field_info, warnings=tuple(warnings))
+
+
+def blade_from_surfaces(surfaces, materials, frame: HubFrame, *, lumped=(), reference_radius_m: float | None = None,
+                        reference_fraction: float = 0.75, name: str = "blade", source: str = "surfaces",
+                        units: str = "m", warnings=(), angle_line: str = "chord") -> Blade:
+    """The surface route: a :class:`Blade` (no mass elements) from closed surfaces already in
+    the hub frame.
+
+    surfaces : per body ``(vertices (n, 3) m, faces (m, 3))``, hub frame, outward wound
+    materials : one :class:`BodyMaterial` per body (see :func:`resolve_materials`)
+    lumped : :class:`LumpedMass` es (model frame positions, m)
+    reference_radius_m : reference station of the blade angle (default: fraction × tip radius)
+    angle_line : reference line of the blade angle, ``"chord"`` or ``"face"`` (docs/CONVENTIONS.md §2)
+
+    Each body's moments are the exact closed-surface integral times its density; the blade
+    angle is measured at the reference station (a warning, not an error, when it cannot be).
+    """
+    from .moments import surface_volume_moments
+
+    surfaces = tuple((np.asarray(v, dtype=float), np.asarray(f, dtype=np.int64)) for v, f in surfaces)
+    materials = tuple(materials)
+    warnings = list(warnings)
+    body_moments = tuple(surface_volume_moments(v, f).scaled(m.density_kg_m3) for (v, f), m in zip(surfaces, materials))
     lumped = tuple(lumped)
+    lumped_moments = zero_moments()
     for p in lumped:
-        lm = lm + point_mass(p.mass_kg, frame.to_hub(p.position_m))
-    all_y = np.concatenate([v[:, 1] for v, _ in surfaces])
-    tip = float(all_y.max())
+        lumped_moments = lumped_moments + point_mass(p.mass_kg, frame.to_hub(p.position_m))
+    tip = float(max(v[:, 1].max() for v, _ in surfaces))
     if reference_radius_m is None:
         reference_radius_m = reference_fraction * tip
     angle = None
     try:
-        angle = measure_blade_angle(surfaces, frame, reference_radius_m, source=str(path), line=angle_line)
+        angle = measure_blade_angle(surfaces, frame, reference_radius_m, source=source, line=angle_line)
     except InputError as exc:
         warnings.append(f"blade angle not measured: {exc.problem}")
-    el = nodes = tets = body_ix = None
-    if all(b.tets is not None for b in bodies):
-        elements = True  # a volume mesh brings its elements: no meshing, so always use them
-    field_info = None
-    if elements:
-        from .mesh import mass_elements
-
-        say("mesh")
-        hub_bodies = [
-            type(b)(b.name, v, f, b.tets) for b, (v, f) in zip(bodies, surfaces)
-        ]
-        limit = DEFAULT_FIELD_FACES if field_faces is None else int(field_faces)
-        if any(b.tets is None and len(b.faces) > limit for b in hub_bodies):
-            volumes = [abs(m.mass) / mat.density_kg_m3 for m, mat in zip(body_moments, mats)]
-            hub_bodies, field_info = _field_copies(hub_bodies, volumes, limit)
-            warnings.append(
-                f"element fields on a simplified copy ({field_info['faces_field']} of {field_info['faces_full']} "
-                f"faces, volume change {field_info['volume_change']:+.2e}); mass, tensor and loads stay exact from "
-                "the full surface (give --field-faces to change)"
-            )
-        tm = mass_elements(
-            hub_bodies, max_volume=max_element_volume_m3, target_elements=target_elements, source=str(path)
-        )
-        say("integrate elements")
-        vol = tet_volume_moments(tm.nodes, tm.tets)
-        rho = np.array([m.density_kg_m3 for m in mats])[tm.body]
-        el = ElementMoments(vol.mass * rho, vol.first * rho[:, None], vol.second * rho[:, None, None])
-        nodes, tets, body_ix = tm.nodes, tm.tets, tm.body
-        if field_info is not None:
-            surf_total = zero_moments()
-            for m in body_moments:
-                surf_total = surf_total + m
-            field_info["moments_rel_difference"] = relative_difference(el.total(), surf_total)
-    return Blade(
-        name=name or str(path).replace("\\", "/").rsplit("/", 1)[-1],
-        source=str(path),
-        units=units,
-        frame=frame,
-        materials=mats,
-        surfaces=surfaces,
-        body_moments=body_moments,
-        lumped=lumped,
-        lumped_moments=lm,
-        tip_radius_m=tip,
-        reference_radius_m=float(reference_radius_m),
-        modelled_angle=angle,
-        elements=el,
-        element_nodes=nodes,
-        element_tets=tets,
-        element_body=body_ix,
-        field_resolution=field_info,
-        warnings=tuple(warnings),
-    )
+    return Blade(name=name, source=source, units=units, frame=frame, materials=materials, surfaces=surfaces,
+                 body_moments=body_moments, lumped=lumped, lumped_moments=lumped_moments, tip_radius_m=tip,
+                 reference_radius_m=float(reference_radius_m), modelled_angle=angle, warnings=tuple(warnings))
 
 
 #: Surfaces with more faces than this get their element fields on a simplified copy
@@ -403,19 +478,18 @@ def mass_properties(blade: Blade) -> MassProperties:
 # --- loads ------------------------------------------------------------------------------
 
 
-def blade_curve(blade: Blade) -> CtmCurve:
-    """The CTM(β) curve of the blade with its lumped masses (coefficients per Ω²)."""
-    return blade.ctm_curve
-
-
 def resolve_blade_angle(blade: Blade, blade_angle_deg: float | None = None,
                         pitch_change_deg: float | None = None) -> float:
-    """Absolute blade angle (deg) from an absolute angle or a change from the modelled one."""
+    """Absolute blade angle (deg) from an absolute angle or a change from the modelled one
+    (neither: the modelled angle). An absolute angle needs the modelled angle measured at the
+    reference station, since the blade is turned from there.
+    """
     if blade_angle_deg is not None and pitch_change_deg is not None:
-        raise InputError("--blade-angle", "give either --blade-angle or --pitch-change, not both")
+        raise InputError("blade_angle_deg", "give either blade_angle_deg or pitch_change_deg, not both")
     if blade_angle_deg is not None:
         if blade.modelled_angle is None:
-            raise InputError(blade.source, "the modelled blade angle could not be measured; use --pitch-change")
+            raise InputError(blade.source, "the modelled blade angle could not be measured at the reference station; "
+                                           "give pitch_change_deg (a change from the modelled angle) instead")
         return float(blade_angle_deg)
     return blade.modelled_deg + float(pitch_change_deg or 0.0)
 
@@ -425,7 +499,7 @@ def loads_at(blade: Blade, rpm: float, blade_angle_deg: float | None = None,
     """Centrifugal loads at ``rpm`` and an absolute blade angle (or a pitch change)."""
     beta = resolve_blade_angle(blade, blade_angle_deg, pitch_change_deg)
     return operating_loads(blade.moments, blade.frame, blade.modelled_deg, beta, rpm, name=name,
-                           curve=blade_curve(blade))
+                           curve=blade.ctm_curve)
 
 
 def loads_for_job(blade: Blade, job) -> list[OperatingLoads]:
@@ -437,11 +511,9 @@ def pitch_sweep(blade: Blade, rpm: float, lo_deg: float, hi_deg: float, step_deg
     """(β (deg), CTM (N·m), pitch stiffness (N·m/rad)) arrays over a blade-angle range."""
     from .job import range_points
 
-    betas = range_points(lo_deg, hi_deg, step_deg, "--sweep")
+    betas = range_points(lo_deg, hi_deg, step_deg, "lo_deg:hi_deg:step_deg")
     omega = rpm_to_rad_s(rpm)
-    curve = blade_curve(blade)
-    return betas, curve.ctm(betas, omega), curve.pitch_stiffness(betas, omega)
-
+    return betas, blade.ctm_curve.ctm(betas, omega), blade.ctm_curve.pitch_stiffness(betas, omega)
 
 
 # --- from a job ---------------------------------------------------------------------------

@@ -59,6 +59,8 @@ from dataclasses import dataclass
 
 from .errors import InputError, one_line
 
+__all__ = ["COLUMNS", "COMMANDS", "SUMMARY_SCHEMA", "BatchResult", "collect_jobs", "run_batch", "run_job"]
+
 COMMANDS = ("mass", "loads", "check")
 SUMMARY_SCHEMA = "bladesolid.batch/1"
 
@@ -111,11 +113,11 @@ def collect_jobs(inputs) -> list[str]:
     return unique
 
 
-def output_names(jobs) -> list[str]:
+def _output_names(jobs) -> list[str]:
     """A safe, unique output folder name per job: its file stem, with characters other than
     letters, digits, ``.``, ``_`` and ``-`` replaced, and ``-2``, ``-3``... on clashes.
 
-    >>> output_names(["a/blade 1.toml", "b/Blade 1.toml", "../.hidden.toml", "c/summary.toml"])
+    >>> _output_names(["a/blade 1.toml", "b/Blade 1.toml", "../.hidden.toml", "c/summary.toml"])
     ['blade_1', 'Blade_1-2', 'job_.hidden', 'summary']
     """
     names, used = [], set()
@@ -158,7 +160,7 @@ def run_job(job_path: str, options: dict) -> dict:
     """
     t0 = time.perf_counter()
     command = options.get("command", "loads")
-    name = options.get("name") or output_names([job_path])[0]
+    name = options.get("name") or _output_names([job_path])[0]
     folder = os.path.join(os.fspath(options["out"]), name)
     row = {c: None for c in COLUMNS}
     row.update(job=os.fspath(job_path), status=FAILED, output=None, host=socket.gethostname(), pid=os.getpid())
@@ -187,7 +189,7 @@ def _run(job_path, command, folder, force) -> dict:
     from .safefile import check_new_folder
 
     if command not in COMMANDS:
-        raise InputError("--command", f"expected one of {', '.join(COMMANDS)}, got {command!r}")
+        raise InputError("command", f"expected one of {', '.join(COMMANDS)}, got {command!r}")
     check_new_folder(folder, force)  # refused before any work
     job = load_job(job_path)
     status = OK
@@ -205,9 +207,7 @@ def _run(job_path, command, folder, force) -> dict:
             require_operating_points(job)
             data = loads_report(blade, job, ops)
         else:
-            data = report.base_report(blade)
-            data["mass_properties"] = report.mass_section(api.mass_properties(blade))
-            data["blade_angle"] = report.blade_angle_section(blade)
+            data = report.mass_report(blade, api.mass_properties(blade))
         with report.staged_folder(folder, force) as tmp:
             with open(os.path.join(tmp, "report.json"), "w", encoding="utf-8") as fh:
                 fh.write(report.dumps(data))
@@ -247,7 +247,7 @@ class BatchResult:
         return 1 if any(r["status"] == OUTSIDE for r in self.rows) else 0
 
 
-def local_client(workers: int):
+def _local_client(workers: int):
     """A dask Client on a LocalCluster of ``workers`` processes, one thread each."""
     import logging
 
@@ -272,7 +272,7 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
     from . import report
 
     if command not in COMMANDS:
-        raise InputError("--command", f"expected one of {', '.join(COMMANDS)}, got {command!r}")
+        raise InputError("command", f"expected one of {', '.join(COMMANDS)}, got {command!r}")
     t0 = time.perf_counter()
     jobs = collect_jobs(inputs)
     out = os.path.abspath(os.fspath(out))
@@ -284,7 +284,7 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
     if os.path.isdir(out):
         for p in (csv_path, json_path):
             report.check_new_output(p, force)
-    names = output_names(jobs)
+    names = _output_names(jobs)
     opts = [{"command": command, "out": out, "name": n, "force": force} for n in names]
 
     rows: list[dict | None] = [None] * len(jobs)
@@ -315,7 +315,7 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
                 where = scheduler
             else:
                 n = max(1, min(workers or os.cpu_count() or 1, len(jobs)))
-                own = client = local_client(n)
+                own = client = _local_client(n)
                 where = f"local cluster ({n} worker processes)"
         else:
             where = f"dask client ({getattr(client.scheduler, 'address', '?')})"
@@ -347,22 +347,18 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
                     cluster.close()
     seconds = time.perf_counter() - t0
     rows = tuple(rows)
-    summary = {
-        "schema": SUMMARY_SCHEMA,
-        "command": command,
-        "where": where,
-        "jobs": len(rows),
-        "ok": sum(r["status"] == OK for r in rows),
-        "outside_limits": sum(r["status"] == OUTSIDE for r in rows),
-        "failed": sum(r["status"] not in (OK, OUTSIDE) for r in rows),
-        "seconds": seconds,
-        "columns": list(COLUMNS),
-        "rows": [{c: r.get(c) for c in COLUMNS} for r in rows],
-    }
-    from . import CAUTION, __version__
-
-    summary = {"schema": SUMMARY_SCHEMA, "tool": {"name": "bladesolid", "version": __version__},
-               "caution": CAUTION, **{k: v for k, v in summary.items() if k != "schema"}}
+    summary = report.header(
+        SUMMARY_SCHEMA,
+        command=command,
+        where=where,
+        jobs=len(rows),
+        ok=sum(r["status"] == OK for r in rows),
+        outside_limits=sum(r["status"] == OUTSIDE for r in rows),
+        failed=sum(r["status"] not in (OK, OUTSIDE) for r in rows),
+        seconds=seconds,
+        columns=list(COLUMNS),
+        rows=[{c: r.get(c) for c in COLUMNS} for r in rows],
+    )
     report.atomic_write_text(csv_path, report.csv_text(summary["rows"], list(COLUMNS)), force=True)
     report.atomic_write_text(json_path, report.dumps(summary), force=True)
     return BatchResult(rows, csv_path, json_path, seconds, where)

@@ -27,10 +27,20 @@ from __future__ import annotations
 
 import json
 import math
+import os
 from dataclasses import asdict, dataclass, replace
 from pathlib import Path
 
 import numpy as np
+
+from .compare.transforms import apply_transform, rigid_matrix
+from .frame import rotation_about
+from .geometry import enclosed_volume
+
+__all__ = ["DEMO_DENSITY_KG_M3", "REPAIR_JOB", "REPAIR_LIMITS", "SCAN_ANGLE_DEG", "SCAN_AXIS", "SCAN_TRANSLATION_MM",
+           "blade_surface", "BladeParams", "chord_mm", "demo_variants", "designed_blade_angle_deg",
+           "geometric_pitch_mm", "large_blade_surface", "le_blend_depth_at", "rigid_transform", "scanned_variant",
+           "section_rings", "station_radii", "sweep_mm", "thickness_ratio", "write_demo", "write_demo_meshes"]
 
 #: Density of the demo blade material (a wrought high-strength aluminium alloy), kg/m³ — from memory.
 DEMO_DENSITY_KG_M3 = 2810.0
@@ -332,11 +342,6 @@ def section_rings(params: BladeParams):
 # --------------------------------------------------------------------------- surface
 
 
-def _signed_volume(vertices: np.ndarray, faces: np.ndarray) -> float:
-    tri = vertices[faces]
-    return float(np.einsum("ij,ij->i", tri[:, 0], np.cross(tri[:, 1], tri[:, 2])).sum() / 6.0)
-
-
 def blade_surface(params: BladeParams | None = None) -> tuple[np.ndarray, np.ndarray]:
     """Closed triangle surface of the blade in the hub frame.
 
@@ -375,7 +380,7 @@ def blade_surface(params: BladeParams | None = None) -> tuple[np.ndarray, np.nda
     last = (n_rings - 1) * n
     cap = np.column_stack([np.full(n, i_tip), last + i, last + j])
     faces = np.vstack(bands + [root, cap]).astype(np.int64)
-    if _signed_volume(vertices, faces) < 0.0:
+    if enclosed_volume(vertices, faces) < 0.0:
         faces = faces[:, ::-1].copy()
     return vertices, faces
 
@@ -407,22 +412,9 @@ def rigid_transform(angle_deg: float, axis, translation) -> np.ndarray:
     [1.0, 3.0, 3.0, 1.0]
     """
     a = np.asarray(axis, dtype=float)
-    norm = np.linalg.norm(a)
-    if a.shape != (3,) or norm == 0.0:
+    if a.shape != (3,) or np.linalg.norm(a) == 0.0:
         raise ValueError(f"rigid_transform: axis must be a non-zero 3-vector, got {axis!r}")
-    a = a / norm
-    th = math.radians(angle_deg)
-    kx = np.array([[0.0, -a[2], a[1]], [a[2], 0.0, -a[0]], [-a[1], a[0], 0.0]])
-    rot = np.eye(3) + math.sin(th) * kx + (1.0 - math.cos(th)) * (kx @ kx)
-    out = np.eye(4)
-    out[:3, :3] = rot
-    out[:3, 3] = np.asarray(translation, dtype=float)
-    return out
-
-
-def apply_transform(transform: np.ndarray, vertices: np.ndarray) -> np.ndarray:
-    """Points ``(n, 3)`` moved by a 4x4 rigid transform."""
-    return vertices @ transform[:3, :3].T + transform[:3, 3]
+    return rigid_matrix(rotation_about(a, math.radians(angle_deg)), translation)
 
 
 def scanned_variant(params: BladeParams | None = None, angle_deg: float = SCAN_ANGLE_DEG,
@@ -439,6 +431,57 @@ def scanned_variant(params: BladeParams | None = None, angle_deg: float = SCAN_A
 
 
 # --------------------------------------------------------------------------- files
+
+
+#: The repair scenario's job: the BW-3 blade after a leading-edge blend at the invented Larkspur
+#: Blade Repair shop, scanned in the scanner's own frame, checked against its nominal.
+REPAIR_JOB = """\
+# bladesolid demo repair job: the BW-3 blade after a leading-edge blend at the invented
+# Larkspur Blade Repair shop, scanned in the scanner's own frame, checked against nominal.
+name = "BW-3 serial BW3-0001 after LE blend (invented)"
+mesh = "demo_blade_le_blend_scanned.stl"
+reference = "demo_blade.stl"
+limits = "repair_limits.toml"
+units = "mm"
+material = "al-2025-t6"
+blades = 3
+stations = 16
+
+[[operating_point]]
+name = "take-off"
+rpm = 2500
+blade_angle = 25.0
+"""
+
+#: The repair scenario's limits file (the user's allowed changes; invented for the demo).
+REPAIR_LIMITS = """\
+# Allowed changes, repaired minus nominal. These are the USER'S limits, to be taken from the
+# approved repair data; the figures below are invented for the demo.
+source = "Larkspur Blade Repair, demo repair scheme (invented)"
+mass = "-30 g:+2 g"
+max_abs_static_moment = "15 kg*mm"
+max_abs_ctm = "3 N*m"
+blade_angle = "-0.25:0.25"
+cg_shift = "1.5 mm"
+max_deviation = "5 mm"
+removed_volume = "12000 mm^3"
+"""
+
+
+def write_demo(folder) -> dict[str, str]:
+    """Write the demo into ``folder`` (created): the blade meshes (:func:`write_demo_meshes`),
+    the demo job (:data:`bladesolid.job.EXAMPLE_JOB`, the one example job), the repair job and
+    its limits file. Returns the paths of ``"job"``, ``"repair_job"`` and ``"repair_limits"``."""
+    from .job import EXAMPLE_JOB
+    from .safefile import atomic_write_text
+
+    os.makedirs(folder, exist_ok=True)
+    write_demo_meshes(folder)
+    paths = {"job": os.path.join(folder, "demo_job.toml"), "repair_job": os.path.join(folder, "repair_job.toml"),
+             "repair_limits": os.path.join(folder, "repair_limits.toml")}
+    for key, text in (("job", EXAMPLE_JOB), ("repair_job", REPAIR_JOB), ("repair_limits", REPAIR_LIMITS)):
+        atomic_write_text(paths[key], text, force=True)
+    return paths
 
 
 def demo_variants() -> dict[str, BladeParams]:
@@ -477,7 +520,7 @@ def write_demo_meshes(outdir) -> tuple[Path, ...]:
             "file": path.name,
             "units": "mm",
             "faces": int(len(f)),
-            "volume_mm3": round(abs(_signed_volume(v, f)), 3),
+            "volume_mm3": round(abs(enclosed_volume(v, f)), 3),
             "designed_blade_angle_deg": params.blade_angle_ref_deg,
             "reference_radius_mm": params.reference_radius_mm,
             "transform_from_hub_frame": transform.tolist(),

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+__all__ = ["InputError", "one_line", "OutputExistsError"]
+
 
 class InputError(ValueError):
     """A bad input: names the file (or key, or flag) and the problem in one line.

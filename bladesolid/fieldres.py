@@ -21,6 +21,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from .geometry import enclosed_volume as signed_volume  # the one signed-volume formula
+
 #: largest relative volume change accepted for a field copy (common practice, no source)
 MAX_VOLUME_CHANGE = 0.02
 
@@ -152,14 +154,6 @@ def folded_edges(vertices: np.ndarray, faces: np.ndarray, cos_limit: float = -0.
     same = (e[1:] == e[:-1]).all(axis=1)
     a, b = owner[:-1][same], owner[1:][same]
     return int((np.einsum("ij,ij->i", n[a], n[b]) < cos_limit).sum())
-
-
-def signed_volume(vertices: np.ndarray, faces: np.ndarray) -> float:
-    """Enclosed volume of a closed triangle surface (divergence theorem), + when outward."""
-    tri = np.asarray(vertices, dtype=float)[np.asarray(faces)]
-    c = tri.reshape(-1, 3).mean(axis=0)
-    t = tri - c
-    return float(np.einsum("ij,ij->i", t[:, 0], np.cross(t[:, 1], t[:, 2])).sum() / 6.0)
 
 
 def pieces(faces: np.ndarray, n_vertices: int) -> int:

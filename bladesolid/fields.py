@@ -26,9 +26,14 @@ import numpy as np
 
 from .frame import HubFrame, chord_line, section_points
 from .loads import centrifugal_twisting_moment, moments_at_angle, radial_pull
-from .mesh import tet_signed_volumes
+from .geometry import tet_signed_volumes
 from .moments import ElementMoments, point_mass
 from .units import rpm_to_rad_s
+
+__all__ = ["CIRCULAR_RATIO", "EDGE_FRACTION", "FIELD_NAMES", "LEADING_EDGE", "MID_CHORD", "REGIONS", "ROOT_FRACTION",
+           "SHANK", "SHARE_LEVELS", "TIP", "TIP_FRACTION", "TRAILING_EDGE", "TRANSITION_RATIO",
+           "element_contributions", "element_fields", "ElementFields", "FieldTotals", "hot_spots", "HotSpots",
+           "LumpedRow", "share_bands", "ShareBands", "summary"]
 
 #: Levels of the cumulative share bands, percent of the total.
 SHARE_LEVELS = (50, 80, 95)
@@ -256,29 +261,32 @@ class ElementFields:
 FIELD_NAMES = ("mass_kg", "volume_m3", "radial_pull_N", "ctm_Nm", "ctm_share_band", "pull_share_band", "body")
 
 
-def element_volumes(nodes: np.ndarray, tets: np.ndarray) -> np.ndarray:
+def _element_volumes(nodes: np.ndarray, tets: np.ndarray) -> np.ndarray:
     """(k,) element volumes |((v1−v0)×(v2−v0))·(v3−v0)|/6, m³.
 
-    >>> float(element_volumes(np.array([[0., 0, 0], [1, 0, 0], [0, 1, 0], [0, 0, 1]]), np.array([[0, 1, 2, 3]]))[0]) * 6
+    >>> float(_element_volumes(np.array([[0., 0, 0], [1, 0, 0], [0, 1, 0], [0, 0, 1]]), np.array([[0, 1, 2, 3]]))[0]) * 6
     1.0
     """
     return np.abs(tet_signed_volumes(np.asarray(nodes, dtype=float), np.asarray(tets)))
 
 
 def element_fields(blade, rpm: float, blade_angle_deg: float | None = None, *,
-                   levels=SHARE_LEVELS) -> ElementFields:
+                   pitch_change_deg: float | None = None, levels=SHARE_LEVELS) -> ElementFields:
     """Per-element mass, radial pull and CTM of a meshed blade at ``rpm`` and a blade angle.
 
     blade : a :class:`bladesolid.api.Blade` with elements (``elements``, ``element_nodes``,
       ``element_tets``, ``element_body``, ``frame``, ``modelled_deg``, ``lumped``)
-    blade_angle_deg : absolute blade angle, degrees (None: the modelled angle)
+    blade_angle_deg / pitch_change_deg : as :func:`bladesolid.api.resolve_blade_angle`
+      (default: the modelled blade angle)
     levels : percent levels of the share bands
     """
     if blade.elements is None:
         raise ValueError(f"{blade.source}: the blade was loaded without mass elements; load it with elements=True")
+    from .api import resolve_blade_angle  # the semantics of the documented API, written once
+
     frame = blade.frame
     modelled = float(blade.modelled_deg)
-    beta = modelled if blade_angle_deg is None else float(blade_angle_deg)
+    beta = resolve_blade_angle(blade, blade_angle_deg, pitch_change_deg)
     delta = beta - modelled
     omega = rpm_to_rad_s(rpm)
     el = blade.elements
@@ -286,7 +294,7 @@ def element_fields(blade, rpm: float, blade_angle_deg: float | None = None, *,
     total = moments_at_angle(el.total(), frame, delta)
     totals = FieldTotals(float(total.mass), float(radial_pull(total, frame, omega)),
                          float(centrifugal_twisting_moment(total, frame, omega)))
-    volume = element_volumes(blade.element_nodes, blade.element_tets)
+    volume = _element_volumes(blade.element_nodes, blade.element_tets)
     mass = np.asarray(el.mass, dtype=float)
     ctm_b = share_bands(ctm, volume, mass, levels, "ctm_Nm")
     pull_b = share_bands(pull, volume, mass, levels, "radial_pull_N")
@@ -321,7 +329,7 @@ def element_fields(blade, rpm: float, blade_angle_deg: float | None = None, *,
 
 
 @dataclass(frozen=True)
-class SectionTrack:
+class _SectionTrack:
     """Leading and trailing edges of sections normal to e along the span (hub frame, modelled).
 
     radii_m : (n,) station radii (y), ascending
@@ -343,7 +351,7 @@ class SectionTrack:
         return le, te
 
 
-def section_track(surfaces, frame: HubFrame, stations: int = 60) -> SectionTrack:
+def _section_track(surfaces, frame: HubFrame, stations: int = 60) -> _SectionTrack:
     """Cut the surfaces (hub frame, modelled position) at ``stations`` radii spread evenly
     over the span (mid-points of equal intervals) and find each section's chord line."""
     y = np.concatenate([np.asarray(v)[:, 1] for v, _ in surfaces])
@@ -368,10 +376,10 @@ def section_track(surfaces, frame: HubFrame, stations: int = 60) -> SectionTrack
         ratios.append(float(w.max() - w.min()) / chord)
     if len(radii) < 2:
         raise ValueError("fewer than two sections of the blade could be cut normal to the pitch axis")
-    return SectionTrack(np.array(radii), np.array(les), np.array(tes), np.array(chords), np.array(ratios))
+    return _SectionTrack(np.array(radii), np.array(les), np.array(tes), np.array(chords), np.array(ratios))
 
 
-def chordwise_position(points: np.ndarray, track: SectionTrack) -> np.ndarray:
+def _chordwise_position(points: np.ndarray, track: _SectionTrack) -> np.ndarray:
     """(k,) chordwise position of points (k, 3) (hub frame, modelled position): 0 at the
     trailing edge, 1 at the leading edge of the section at the point's radius, measured
     along the chord line in the plane normal to e.
@@ -388,7 +396,7 @@ def chordwise_position(points: np.ndarray, track: SectionTrack) -> np.ndarray:
     return np.einsum("ij,ij->i", d, c) / np.einsum("ij,ij->i", c, c)
 
 
-def root_boundary(track: SectionTrack, root_m: float, tip_m: float,
+def _root_boundary(track: _SectionTrack, root_m: float, tip_m: float,
                   root_fraction: float = ROOT_FRACTION) -> tuple[float, str]:
     """Radius (m) inboard of which the blade counts as shank/root, and the rule used.
 
@@ -465,11 +473,11 @@ class HotSpots:
         return (self.tip_m - self.tip_boundary_m) / (self.tip_m - self.root_m)
 
 
-def classify_regions(points: np.ndarray, chordwise: np.ndarray, root_boundary_m: float,
+def _classify_regions(points: np.ndarray, chordwise: np.ndarray, root_boundary_m: float,
                      tip_boundary_m: float, edge_fraction: float = EDGE_FRACTION) -> np.ndarray:
     """(k,) region codes: tip first, then shank/root, then the edge bands, else mid-chord.
 
-    >>> classify_regions(np.array([[0, 0.1, 0], [0, 0.5, 0], [0, 0.5, 0], [0, 0.5, 0], [0, 0.95, 0]]),
+    >>> _classify_regions(np.array([[0, 0.1, 0], [0, 0.5, 0], [0, 0.5, 0], [0, 0.5, 0], [0, 0.95, 0]]),
     ...                  np.array([0.5, 0.9, 0.5, 0.1, 0.5]), 0.2, 0.9).tolist()
     [0, 1, 2, 3, 4]
     """
@@ -492,21 +500,21 @@ def hot_spots(blade, fields: ElementFields, *, edge_fraction: float = EDGE_FRACT
 
     * tip — the outer ``tip_fraction`` of the span (from the innermost to the outermost
       point of the solid along e);
-    * shank/root — inboard of the end of the circular shank (see :func:`root_boundary`),
+    * shank/root — inboard of the end of the circular shank (see :func:`_root_boundary`),
       or the inner ``root_fraction`` of the span when the blade has no round shank;
     * leading edge / trailing edge — within ``edge_fraction`` of the local chord from that
       edge (section normal to e at the element's radius, edges interpolated between
       ``stations`` cuts);
     * mid-chord — the rest.
     """
-    track = section_track(blade.surfaces, blade.frame, stations)
+    track = _section_track(blade.surfaces, blade.frame, stations)
     y = np.concatenate([np.asarray(v)[:, 1] for v, _ in blade.surfaces])
     root_m, tip_m = float(y.min()), float(y.max())
-    rb, rule = root_boundary(track, root_m, tip_m, root_fraction)
+    rb, rule = _root_boundary(track, root_m, tip_m, root_fraction)
     tb = root_m + (1.0 - tip_fraction) * (tip_m - root_m)
     pts = fields.modelled_centroid_m
-    s = chordwise_position(pts, track)
-    region = classify_regions(pts, s, rb, tb, edge_fraction)
+    s = _chordwise_position(pts, track)
+    region = _classify_regions(pts, s, rb, tb, edge_fraction)
     tot = fields.totals
     vtot = float(fields.volume_m3.sum())
 

@@ -13,16 +13,21 @@ from __future__ import annotations
 
 import math
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
 from .errors import InputError
 
+__all__ = ["EXAMPLE_JOB", "KEYS", "build_job", "check_pitch_point", "CounterweightRequest", "hub_frame_of", "Job",
+           "load_job", "OperatingPoint", "range_points", "require_operating_points"]
+
 EXAMPLE_JOB = '''\
 # bladesolid job file: every key has the command-line flag of the same name
 # (pitch_axis <-> --pitch-axis); a flag given beside the job file overrides it.
-name = "BW-3 blade, serial BW3-0142"   # free text, shown in the reports
+# This is the demo job: the invented Brightwater Propellers BW-3 blade (3 blades, 2.0 m
+# diameter, aluminium, modelled at 25 deg at 0.75 R). Every number here is invented.
+name = "BW-3 demo blade, serial BW3-0001 (invented)"   # free text, shown in the reports
 mesh = "demo_blade.stl"                # path relative to this file
 units = "mm"                           # length unit of the mesh and of every point below
 material = "al-2025-t6"                # or: density = "2810 kg/m^3"; a list gives one per body
@@ -42,7 +47,7 @@ angle_line = "chord"                   # blade angle on the nose-to-tail "chord"
 sweep = "-10:90:1"                     # blade-angle range of the CTM sweep, degrees FROM:TO:STEP
 rpm_sweep = "0:3000:100"               # speed range of the speed sweep, rpm FROM:TO:STEP
 stations = 16                          # spanwise stations: a count, or a list of radii
-# allowable = "240 MPa"                # material allowable for the centrifugal margin of safety
+allowable = "200 MPa"                  # allowable for the centrifugal margin of safety (invented)
 proof_factor = 2.0                     # centrifugal proof load = factor x radial pull at rated_rpm
 rated_rpm = 2500                       # maximum rated speed (default: the highest operating point)
 
@@ -65,48 +70,55 @@ blade_angle = 25.0
 name = "balance weight"
 mass = "0.045 kg"
 position = [-10.0, 160.0, 30.0]        # model frame, model units
+
+[counterweight]                        # size a counterweight for a net CTM at take-off
+radius = 160.0                         # along the pitch axis, model units
+arm = 90.0                             # from the pitch axis, model units
+clocking = 90.0                        # degrees from the chord line (90: on the chord normal)
+target_ctm = "0 N*m"                   # the net CTM wanted
 '''
 
-#: key -> (kind, flag); kinds are checked by _check below.
-KEYS: dict[str, tuple[str, str]] = {
-    "name": ("str", "--name"),
-    "mesh": ("path", "MESH"),
-    "units": ("str", "--units"),
-    "density": ("quantity_or_list", "--density"),
-    "material": ("str_or_list", "--material"),
-    "blades": ("int", "--blades"),
-    "hub_centre": ("vec3", "--hub-centre"),
-    "thrust_axis": ("vec3", "--thrust-axis"),
-    "pitch_axis": ("vec3", "--pitch-axis"),
-    "pitch_point": ("vec3", "--pitch-point"),
-    "precone": ("float", "--precone"),
-    "rotation": ("str", "--rotation"),
-    "reference_fraction": ("float", "--reference-fraction"),
-    "reference_radius": ("float", "--reference-radius"),
-    "rpm": ("float_or_list", "--rpm"),
-    "blade_angle": ("float", "--blade-angle"),
-    "pitch_change": ("float", "--pitch-change"),
-    "sweep": ("range", "--sweep"),
-    "rpm_sweep": ("range", "--rpm-sweep"),
-    "stations": ("stations", "--stations"),
-    "allowable": ("quantity", "--allowable"),
-    "proof_factor": ("float", "--proof-factor"),
-    "rated_rpm": ("float", "--rated-rpm"),
-    "angle_line": ("str", "--angle-line"),
-    "elements": ("int", "--elements"),
-    "element_size": ("float", "--element-size"),
-    "field_faces": ("int", "--field-faces"),
-    "reference": ("path", "--reference"),
-    "limits": ("path", "--limits"),
-    "operating_point": ("tables", ""),
-    "lumped_mass": ("tables", ""),
-    "counterweight": ("table", ""),
-    "set": ("table", ""),
+#: Every top-level key and the command-line argument that gives it (MESH: the positional
+#: argument; "": a table, given in a job file only).
+KEYS: dict[str, str] = {
+    "name": "--name",
+    "mesh": "MESH",
+    "units": "--units",
+    "density": "--density",
+    "material": "--material",
+    "blades": "--blades",
+    "hub_centre": "--hub-centre",
+    "thrust_axis": "--thrust-axis",
+    "pitch_axis": "--pitch-axis",
+    "pitch_point": "--pitch-point",
+    "precone": "--precone",
+    "rotation": "--rotation",
+    "reference_fraction": "--reference-fraction",
+    "reference_radius": "--reference-radius",
+    "rpm": "--rpm",
+    "blade_angle": "--blade-angle",
+    "pitch_change": "--pitch-change",
+    "sweep": "--sweep",
+    "rpm_sweep": "--rpm-sweep",
+    "stations": "--stations",
+    "allowable": "--allowable",
+    "proof_factor": "--proof-factor",
+    "rated_rpm": "--rated-rpm",
+    "angle_line": "--angle-line",
+    "elements": "--elements",
+    "element_size": "--element-size",
+    "field_faces": "--field-faces",
+    "reference": "--reference",
+    "limits": "--limits",
+    "operating_point": "",
+    "lumped_mass": "",
+    "counterweight": "",
+    "set": "",
 }
 
-OPERATING_KEYS = {"name", "rpm", "blade_angle", "pitch_change"}
-LUMPED_KEYS = {"name", "mass", "position"}
-COUNTERWEIGHT_KEYS = {"radius", "arm", "clocking", "blade_angle", "rpm", "target_ctm"}
+_OPERATING_KEYS = {"name", "rpm", "blade_angle", "pitch_change"}
+_LUMPED_KEYS = {"name", "mass", "position"}
+_COUNTERWEIGHT_KEYS = {"radius", "arm", "clocking", "blade_angle", "rpm", "target_ctm"}
 
 
 @dataclass(frozen=True)
@@ -165,13 +177,12 @@ class Job:
     reference: str | None = None
     limits: str | None = None
     set_reports: tuple = ()
-    raw: dict = field(default_factory=dict, repr=False, compare=False)
 
 
-def parse_range(text, source: str, key: str) -> tuple[float, float, float]:
+def _parse_range(text, source: str, key: str) -> tuple[float, float, float]:
     """``"FROM:TO:STEP"`` (or a list of three numbers) → floats, checked.
 
-    >>> parse_range("-10:90:0.5", "job.toml", "sweep")
+    >>> _parse_range("-10:90:0.5", "job.toml", "sweep")
     (-10.0, 90.0, 0.5)
     """
     if isinstance(text, (list, tuple)):
@@ -201,10 +212,10 @@ def range_points(lo: float, hi: float, step: float, source: str = "range") -> np
     return lo + step * np.arange(n)
 
 
-def parse_vec3(text, source: str, key: str) -> tuple[float, float, float]:
+def _parse_vec3(text, source: str, key: str) -> tuple[float, float, float]:
     """``"X,Y,Z"`` or a list of three numbers → floats.
 
-    >>> parse_vec3("0,1,0", "--pitch-axis", "pitch axis")
+    >>> _parse_vec3("0,1,0", "--pitch-axis", "pitch axis")
     (0.0, 1.0, 0.0)
     """
     parts = text if isinstance(text, (list, tuple)) else str(text).split(",")
@@ -220,7 +231,7 @@ def parse_vec3(text, source: str, key: str) -> tuple[float, float, float]:
 
 
 def _where(src: str, key: str, from_flag: bool) -> str:
-    flag = KEYS.get(key, ("", ""))[1]
+    flag = KEYS.get(key, "")
     return flag if from_flag and flag else f"{src}: key '{key}'"
 
 
@@ -258,13 +269,6 @@ def _checked_tables(value, source: str, key: str, allowed: set, required: tuple)
                 raise InputError(where, f"missing required key {k!r}")
         out.append((where, t))
     return out
-
-
-def read_job_file(path) -> dict:
-    """Parse a TOML job file into a dict; a one-line error on any problem."""
-    from .io import read_toml
-
-    return read_toml(path, "job file")
 
 
 def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None = None) -> Job:
@@ -330,7 +334,7 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
     def vec(key, length=False):
         if key not in merged:
             return None
-        v = parse_vec3(merged[key], w(key), key)
+        v = _parse_vec3(merged[key], w(key), key)
         return tuple(x * scale for x in v) if length else v
 
     def opt_num(key, integer=False):
@@ -357,7 +361,7 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
     if "operating_point" in merged and "rpm" in from_flag:
         merged.pop("operating_point")  # --rpm replaces the job's operating points
     if "operating_point" in merged:
-        tables = _checked_tables(merged["operating_point"], source, "operating_point", OPERATING_KEYS, ("rpm",))
+        tables = _checked_tables(merged["operating_point"], source, "operating_point", _OPERATING_KEYS, ("rpm",))
         for i, (where, t) in enumerate(tables, 1):
             rpm = _num(t["rpm"], where, "rpm")
             if rpm < 0:
@@ -392,8 +396,8 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
             for o in ops
         ]
 
-    sweep = parse_range(merged["sweep"], w("sweep"), "sweep") if "sweep" in merged else (-10.0, 90.0, 1.0)
-    rpm_sweep = parse_range(merged["rpm_sweep"], w("rpm_sweep"), "rpm_sweep") if "rpm_sweep" in merged else None
+    sweep = _parse_range(merged["sweep"], w("sweep"), "sweep") if "sweep" in merged else (-10.0, 90.0, 1.0)
+    rpm_sweep = _parse_range(merged["rpm_sweep"], w("rpm_sweep"), "rpm_sweep") if "rpm_sweep" in merged else None
 
     stations = merged.get("stations", 16)
     if isinstance(stations, str):
@@ -431,13 +435,13 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
 
     lumped = []
     if "lumped_mass" in merged:
-        tables = _checked_tables(merged["lumped_mass"], source, "lumped_mass", LUMPED_KEYS, ("mass", "position"))
+        tables = _checked_tables(merged["lumped_mass"], source, "lumped_mass", _LUMPED_KEYS, ("mass", "position"))
         for i, (where, t) in enumerate(tables, 1):
             nm = t.get("name", f"lumped mass {i}")
             if not isinstance(nm, str):
                 raise InputError(where, f"name must be a string, got {nm!r}")
             mass = parse_mass(t["mass"], where)
-            pos = tuple(x * scale for x in parse_vec3(t["position"], where, "position"))
+            pos = tuple(x * scale for x in _parse_vec3(t["position"], where, "position"))
             lumped.append((nm, mass, pos))
 
     cw = None
@@ -447,8 +451,8 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
         if not isinstance(t, dict):
             raise InputError(where, "must be a table ([counterweight])")
         for k in t:
-            if k not in COUNTERWEIGHT_KEYS:
-                raise InputError(where, f"unknown key {k!r}; expected {', '.join(sorted(COUNTERWEIGHT_KEYS))}")
+            if k not in _COUNTERWEIGHT_KEYS:
+                raise InputError(where, f"unknown key {k!r}; expected {', '.join(sorted(_COUNTERWEIGHT_KEYS))}")
         for k in ("radius", "arm", "clocking"):
             if k not in t:
                 raise InputError(where, f"missing required key {k!r}")
@@ -507,14 +511,14 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
         reference=path_of("reference") if "reference" in merged else None,
         limits=path_of("limits") if "limits" in merged else None,
         set_reports=set_reports,
-        raw=dict(merged),
     )
 
 
 def load_job(path, flags: dict | None = None) -> Job:
     """Read and validate a job file, with command-line flags overriding its keys."""
-    data = read_job_file(path)
-    return build_job(data, str(path), os.path.dirname(os.path.abspath(str(path))), flags)
+    from .io import read_toml
+
+    return build_job(read_toml(path, "job file"), str(path), os.path.dirname(os.path.abspath(str(path))), flags)
 
 
 def require_operating_points(job: Job) -> tuple[OperatingPoint, ...]:

@@ -58,6 +58,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .errors import InputError
+from .geometry import orient_positive, tet_signed_volumes  # noqa: F401 - the one definition, re-exported
 
 #: Prefix of the private temporary folder that each tetrahedraliser run works in.
 TEMP_PREFIX = "bladesolid-"
@@ -391,20 +392,6 @@ def _flush_c_stdio():
 
 
 # --- geometry helpers -----------------------------------------------------------------------------
-
-
-def tet_signed_volumes(nodes: np.ndarray, tets: np.ndarray) -> np.ndarray:
-    """(k,) signed volumes ((v1−v0)×(v2−v0))·(v3−v0)/6, m³; positive = right-handed."""
-    v = nodes[tets]
-    return np.einsum("ij,ij->i", np.cross(v[:, 1] - v[:, 0], v[:, 2] - v[:, 0]), v[:, 3] - v[:, 0]) / 6.0
-
-
-def orient_positive(nodes: np.ndarray, tets: np.ndarray) -> np.ndarray:
-    """Tetrahedra reordered where needed so that every signed volume is positive."""
-    tets = np.array(tets, dtype=np.int64, copy=True)
-    neg = tet_signed_volumes(nodes, tets) < 0
-    tets[neg, 2], tets[neg, 3] = tets[neg, 3].copy(), tets[neg, 2].copy()
-    return tets
 
 
 def winding_numbers(vertices: np.ndarray, faces: np.ndarray, points: np.ndarray) -> np.ndarray:

@@ -22,6 +22,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+__all__ = ["ElementMoments", "inertia_from_second", "Moments", "moved", "point_mass", "relative_difference",
+           "surface_volume_moments", "tet_volume_moments", "tet_volume_moments_numpy", "zero_moments"]
+
 # --------------------------------------------------------------------------------------
 # numba kernels (compiled on first use, cached on disk)
 # --------------------------------------------------------------------------------------
@@ -298,8 +301,10 @@ def tet_volume_moments(nodes: np.ndarray, tets: np.ndarray) -> ElementMoments:
 
 def tet_volume_moments_numpy(nodes: np.ndarray, tets: np.ndarray) -> ElementMoments:
     """The same integrals as :func:`tet_volume_moments`, in plain numpy (reference, slower)."""
+    from .geometry import tet_signed_volumes
+
     v = np.asarray(nodes, dtype=float)[np.asarray(tets)]
-    vol = np.abs(np.einsum("ij,ij->i", np.cross(v[:, 1] - v[:, 0], v[:, 2] - v[:, 0]), v[:, 3] - v[:, 0])) / 6.0
+    vol = np.abs(tet_signed_volumes(nodes, tets))
     s = v.sum(axis=1)
     first = vol[:, None] * s / 4.0
     second = vol[:, None, None] / 20.0 * (np.einsum("kai,kaj->kij", v, v) + np.einsum("ki,kj->kij", s, s))

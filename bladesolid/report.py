@@ -17,6 +17,11 @@ import numpy as np
 from . import CAUTION, __version__
 from .safefile import atomic_write_bytes, atomic_write_text, check_new_output, staged_folder  # noqa: F401
 
+__all__ = ["LOAD_FIGURES", "SCHEMA", "atomic_write_bytes", "atomic_write_text", "base_report", "blade_angle_section",
+           "check_new_output", "compare_report", "csv_text", "dumps", "header", "jsonable", "load_figures",
+           "mass_report", "mass_section", "match_report", "operating_point_row", "review_html", "span_report",
+           "staged_folder", "sweep_rows"]
+
 SCHEMA = "bladesolid.report/1"
 
 
@@ -86,13 +91,20 @@ def operating_point_row(op) -> dict:
     }
 
 
+def header(schema: str = SCHEMA, **sections) -> dict:
+    """The head every report and summary starts with: ``schema``, ``tool``, ``caution``, then
+    ``sections`` in the order given (docs/CONVENTIONS.md §6).
+
+    >>> list(header(input={}, warnings=[]))
+    ['schema', 'tool', 'caution', 'input', 'warnings']
+    """
+    return {"schema": schema, "tool": {"name": "bladesolid", "version": __version__}, "caution": CAUTION, **sections}
+
+
 def base_report(blade) -> dict:
-    """Header of every report: schema, tool, caution, inputs, warnings."""
-    return {
-        "schema": SCHEMA,
-        "tool": {"name": "bladesolid", "version": __version__},
-        "caution": CAUTION,
-        "input": {
+    """Header of every report of one blade: schema, tool, caution, inputs, warnings."""
+    return header(
+        input={
             "name": blade.name,
             "mesh": blade.source,
             "units": blade.units,
@@ -114,8 +126,8 @@ def base_report(blade) -> dict:
             "elements": None if blade.elements is None else len(blade.elements),
             "field_resolution": blade.field_resolution,
         },
-        "warnings": list(blade.warnings),
-    }
+        warnings=list(blade.warnings),
+    )
 
 
 def blade_angle_section(blade) -> dict:
@@ -153,6 +165,88 @@ def sweep_rows(betas, ctm, stiffness) -> list[dict]:
     ]
 
 
+#: The figures of an operating point as the tables show them (terminal and HTML), in order:
+#: (label, key of the ``operating_points`` row, component or None, unit kind of
+#: :data:`bladesolid.units.CUSTOMARY` or a fixed unit, significant digits).
+LOAD_FIGURES = (
+    ("speed", "rpm", None, "rpm", 6),
+    ("blade angle", "blade_angle_deg", None, "deg", 5),
+    ("radial pull F·e", "radial_pull_N", None, "force", 6),
+    ("centrifugal force x (hub frame)", "cf_N", 0, "force", 6),
+    ("centrifugal force y", "cf_N", 1, "force", 6),
+    ("centrifugal force z", "cf_N", 2, "force", 6),
+    ("CTM (+ toward coarse)", "ctm_Nm", None, "moment", 6),
+    ("out-of-plane bending at hub (+ tip forward)", "bending_out_of_plane_Nm", None, "moment", 6),
+    ("in-plane bending at hub (+ tip with rotation)", "bending_in_plane_Nm", None, "moment", 6),
+    ("centrifugal pitch stiffness −dCTM/dβ", "pitch_stiffness_Nm_per_rad", None, "stiffness", 6),
+    ("feathering moment of inertia", "feathering_inertia_kgm2", None, "inertia", 6),
+    ("free-pitch frequency ratio ν/Ω", "free_pitch_frequency_ratio", None, "—", 4),
+    ("polar moment of inertia, per blade", "polar_inertia_kgm2", None, "inertia", 6),
+)
+
+
+def load_figures(rows, us: bool = False) -> list[tuple[str, str, list, int]]:
+    """The table of :data:`LOAD_FIGURES` for ``operating_points`` rows: ``(label, unit,
+    [value per point], digits)`` per figure, in SI or (``us``) US customary units; a value
+    is None where the row has none.
+
+    >>> load_figures([{"rpm": 2500.0, "radial_pull_N": 1000.0}])[2][:3]
+    ('radial pull F·e', 'N', [1000.0])
+    """
+    from .units import CUSTOMARY, to_customary, unit_label
+
+    out = []
+    for label, key, part, kind, digits in LOAD_FIGURES:
+        values = []
+        for r in rows:
+            v = r.get(key)
+            if v is not None and part is not None:
+                v = v[part]
+            if v is not None and us and kind in CUSTOMARY:
+                v = to_customary(v, kind)
+            values.append(None if v is None else float(v))
+        unit = unit_label(kind, "us" if us else "si") if kind in CUSTOMARY else kind
+        out.append((label, unit, values, digits))
+    return out
+
+
+def mass_report(blade, props) -> dict:
+    """The report of the ``mass`` command: header, ``mass_properties``, ``blade_angle``."""
+    data = base_report(blade)
+    data["mass_properties"] = mass_section(props)
+    data["blade_angle"] = blade_angle_section(blade)
+    return data
+
+
+def span_report(blade, op, table, rows, note: str) -> dict:
+    """The report of the ``span`` command: header, ``blade_angle``, the operating point and the
+    ``spanwise`` rows (one per station, inboard first) with their ``note``."""
+    data = base_report(blade)
+    data["blade_angle"] = blade_angle_section(blade)
+    data["spanwise_operating_point"] = {"name": op.name, "rpm": table.rpm, "blade_angle_deg": table.blade_angle_deg,
+                                        "allowable_Pa": table.allowable_Pa, "density_note": table.density_note}
+    data["spanwise"] = rows
+    data["spanwise_note"] = note
+    return data
+
+
+def compare_report(job, section: dict, warnings, *, transform=None, reference_units=None) -> dict:
+    """The report of the ``compare`` command: header, the inputs of the comparison, warnings and
+    ``comparison`` (``section``, from :func:`bladesolid.compare.comparison_section`)."""
+    return header(
+        input={"repaired_mesh": job.mesh, "reference_mesh": job.reference, "units": job.units,
+               "reference_units": reference_units or job.units, "limits": job.limits,
+               "transform": transform, "operating_point": job.operating_points[0].name},
+        warnings=list(warnings),
+        comparison=section,
+    )
+
+
+def match_report(reports, section: dict, warnings) -> dict:
+    """The report of the ``match`` command: header, the reports read, warnings and ``match``."""
+    return header(input={"reports": list(reports)}, warnings=list(warnings), match=section)
+
+
 def csv_text(rows: list[dict], columns: list[str] | None = None) -> str:
     """CSV text of a list of flat dicts (the column names carry the units)."""
     buf = io.StringIO()
@@ -169,7 +263,7 @@ def csv_text(rows: list[dict], columns: list[str] | None = None) -> str:
 # --- HTML ---------------------------------------------------------------------------------
 
 _CSS = """
-body{font-family:system-ui,-apple-system,'Segoe UI',Roboto,sans-serif;margin:0;color:#1d2329;background:#f6f7f4}
+body{font-family:system-ui,sans-serif;margin:0;color:#1d2329;background:#f6f7f4}
 header{background:#21413c;color:#f4f1e8;padding:18px 32px}
 header h1{margin:0;font-size:22px;font-weight:600}
 header p{margin:4px 0 0;font-size:13px;opacity:.85}
@@ -275,17 +369,8 @@ def review_html(data: dict, images: dict | None = None, files: list | None = Non
 
     ops = d.get("operating_points")
     if ops:
-        figs = [
-            ("speed", "rpm", "rpm"), ("blade angle", "blade_angle_deg", "deg"), ("radial pull", "radial_pull_N", "N"),
-            ("CTM (+ toward coarse)", "ctm_Nm", "N·m"),
-            ("out-of-plane bending at hub", "bending_out_of_plane_Nm", "N·m"),
-            ("in-plane bending at hub", "bending_in_plane_Nm", "N·m"),
-            ("centrifugal pitch stiffness", "pitch_stiffness_Nm_per_rad", "N·m/rad"),
-            ("feathering moment of inertia", "feathering_inertia_kgm2", "kg·m²"),
-            ("free-pitch frequency ratio ν/Ω", "free_pitch_frequency_ratio", "—"),
-            ("polar moment of inertia per blade", "polar_inertia_kgm2", "kg·m²"),
-        ]
-        rows = [[_e(label), _e(unit)] + [_num(o.get(key)) for o in ops] for label, key, unit in figs]
+        rows = [[_e(label), _e(unit)] + [_num(v, digits) for v in values]
+                for label, unit, values, digits in load_figures(ops)]
         sec = "<section><h2>Centrifugal loads</h2>" + _table(rows, ["figure", "unit"] + [o.get("name", "") for o in ops])
         pl = d.get("proof_load")
         if pl:

@@ -192,7 +192,7 @@ def loads_report(blade, job, ops):
     lo, hi, step = job.sweep_deg
     betas, ctm, k = api.pitch_sweep(blade, ops[0].rpm, lo, hi, step)
     data["pitch_sweep"] = report.sweep_rows(betas, ctm, k)
-    curve = api.blade_curve(blade)
+    curve = blade.ctm_curve
     data["ctm_curve"] = {
         "form": "CTM = (2*pi*rpm/60)^2 * (a0 + a1 cos b + b1 sin b + a2 cos 2b + b2 sin 2b), b = blade angle",
         "coefficients_kgm2": dict(zip(["a0", "a1", "b1", "a2", "b2"], curve.coefficients.tolist())),

@@ -12,6 +12,9 @@ import math
 
 from .errors import InputError
 
+__all__ = ["CUSTOMARY", "INCH", "LB", "LBF", "LENGTH_UNITS", "length_scale", "parse_density", "parse_mass",
+           "parse_moment", "parse_quantity", "parse_stress", "rpm_to_rad_s", "to_customary", "unit_label"]
+
 #: Metres per declared model length unit (exact definitions: 1 in = 25.4 mm, 1 ft = 12 in).
 LENGTH_UNITS: dict[str, float] = {
     "mm": 1e-3,
@@ -40,7 +43,7 @@ CUSTOMARY: dict[str, tuple[str, str, float]] = {
 }
 
 
-def length_scale(unit: str, source: str = "--units") -> float:
+def length_scale(unit: str, source: str = "unit") -> float:
     """Metres per model unit for a declared length unit.
 
     >>> length_scale("mm")
@@ -139,7 +142,7 @@ def parse_quantity(text, si_unit: str, source: str, what: str, signed: bool = Fa
     return value
 
 
-def parse_density(text, source: str = "--density") -> float:
+def parse_density(text, source: str = "density") -> float:
     """Density in kg/m³ from a quantity with its unit or a bare number in kg/m³."""
     return parse_quantity(text, "kg/m^3", source, "density")
 

@@ -104,9 +104,6 @@ def _pt(fs: int, factor: float) -> int:
     return max(5, int(round(fs * factor)))
 
 
-# --- safe output -----------------------------------------------------------------------
-
-
 # --- the element grid ------------------------------------------------------------------
 
 
@@ -262,7 +259,7 @@ def _view_basis(frame: HubFrame, view: str):
     elif view == "aft":             # from behind (pressure side), looking along +k
         d, up = k, t
     else:
-        raise ValueError(f"unknown view {view!r}; expected 'planform', 'tip', 'iso', 'aft' or 'cutaway'")
+        raise ValueError(f"unknown view {view!r}; expected 'planform', 'tip', 'iso' or 'aft'")  # cutaway: internal
     d = d / np.linalg.norm(d)
     up = up - (up @ d) * d
     return d, up / np.linalg.norm(up)

@@ -23,7 +23,15 @@ Rows:
    elements.
 5. the ``mass`` command on a 240 000-face STL, whole process (median of several runs), against
    a bare trimesh script that loads the file and prints its mass. Target: <= 2x.
-6. the cost of running TetGen isolated in a child process (``mesh.run_tetgen``) on the demo
+6. refusals of hostile input (the tests check that they are refused; here, how fast): a binary
+   STL whose header claims 4e9 triangles (in process, and through ``python -m bladesolid`` under
+   a 2 GB address-space cap), a Gmsh file whose counts run past its end, and the slowest of a
+   few bad meshes through the command line.
+7. the field copy of the 240 000-face blade: simplifying it to 20 000 faces and filling the copy
+   with TetGen (facets preserved).
+8. batch: the same jobs on a local dask cluster of two worker processes, and an unreachable
+   scheduler given up on.
+9. the cost of running TetGen isolated in a child process (``mesh.run_tetgen``) on the demo
    blade, rounds interleaved: unprotected in this process, a forked child (the default on
    Linux), a fresh ``python -m bladesolid.mesh`` interpreter with ``.npy`` files (the fallback),
    each after numba's thread pool is up in the parent. Target: fork within 15 % of unprotected.
@@ -35,9 +43,7 @@ medians of repeats; wall clock (``time.perf_counter``).
 from __future__ import annotations
 
 import argparse
-import dataclasses
 import json
-import math
 import os
 import statistics
 import subprocess
@@ -180,7 +186,7 @@ def bench_sweep():
 
     print("[3] CTM sweep, 3601 blade angles", flush=True)
     blade = api.load_blade(DEMO, "mm", ["2810 kg/m^3"])
-    curve = api.blade_curve(blade)
+    curve = blade.ctm_curve
     omega = rpm_to_rad_s(2500.0)
     betas = np.linspace(-180.0, 180.0, 3601)
     t_closed = median_time(lambda: curve.ctm(betas, omega), repeats=50, warmup=3)
@@ -220,38 +226,12 @@ def write_large_stl(folder) -> Path:
 
 
 CHECK_CHILD = r"""
-import inspect, json, sys, time, os, dataclasses
-import numpy as np
+import json, sys, time
 t_start = time.perf_counter()
-from bladesolid import api, review
+from bladesolid import review
 from bladesolid.job import load_job
 job = load_job(sys.argv[1])
-wired = "field_faces" in inspect.signature(api.load_blade).parameters
-how = "api.load_blade(field_faces=...)" if wired else "bench-composed field copy"
-if not wired:
-    # The field-resolution wiring is not in api yet: compose what it will do. Mass, tensor
-    # and loads from the full surface; the element fields from a fieldres copy meshed alone.
-    from bladesolid import fieldres, mesh as mesh_mod
-    from bladesolid.moments import ElementMoments, tet_volume_moments
-    real = api.blade_from_job
-    def with_field_copy(job, *, elements=True, progress=None, **kw):
-        say = progress or (lambda s: None)
-        blade = real(job, elements=False, progress=progress)
-        if not elements:
-            return blade
-        say("mesh")
-        nodes_all, tets_all, body_all, off = [], [], [], 0
-        for i, (v, f) in enumerate(blade.surfaces):
-            vc, fc = fieldres.field_surface(v, f, job.field_faces or 20000)
-            n, t = mesh_mod.tetrahedralise_surface(vc, fc)
-            nodes_all.append(n); tets_all.append(t + off); body_all.append(np.full(len(t), i, np.int32)); off += len(n)
-        nodes, tets, body = np.concatenate(nodes_all), np.concatenate(tets_all), np.concatenate(body_all)
-        say("integrate elements")
-        vol = tet_volume_moments(nodes, tets)
-        rho = np.array([m.density_kg_m3 for m in blade.materials])[body]
-        el = ElementMoments(vol.mass * rho, vol.first * rho[:, None], vol.second * rho[:, None, None])
-        return dataclasses.replace(blade, elements=el, element_nodes=nodes, element_tets=tets, element_body=body)
-    api.blade_from_job = with_field_copy
+how = "api.load_blade(field_faces=...)"
 t0 = time.perf_counter()
 rv = review.run_review(job)
 t1 = time.perf_counter()
@@ -349,11 +329,144 @@ def bench_mass_command(folder, repeats):
         t_ours / t_bare <= 2.0)
 
 
-# --------------------------------------------------------------------------- 6. isolation
+# --------------------------------------------------------------------------- 6. refusals
+
+
+def _timed(fn):
+    t0 = time.perf_counter()
+    out = fn()
+    return time.perf_counter() - t0, out
+
+
+def _refusal(path):
+    from bladesolid.errors import InputError
+    from bladesolid.io import read_mesh
+
+    try:
+        read_mesh(path, "mm")
+    except InputError as exc:
+        return str(exc)
+    return "LOADED"
+
+
+def bench_refusals(folder):
+    import struct
+
+    import meshio
+    import tetgen
+    import trimesh
+
+    print("[6] refusals of hostile input", flush=True)
+    d = Path(folder)
+    liar = d / "liar.stl"
+    liar.write_bytes(b"\0" * 80 + struct.pack("<I", 0xFFFFFFFF) + b"\1" * (12 * 50))
+    t, text = _timed(lambda: _refusal(liar))
+    row("6 refusals", "binary STL claiming 4 294 967 295 triangles (12 in the file), read_mesh",
+        f"{t * 1e3:.1f} ms", "refused" if text != "LOADED" else "LOADED", "", "< 0.5 s", t < 0.5 and text != "LOADED")
+    code = ("import resource, runpy, sys\n"
+            "resource.setrlimit(resource.RLIMIT_AS, (2 * 1024**3, 2 * 1024**3))\n"
+            f"sys.argv = ['bladesolid', 'mass', {str(liar)!r}, '--units', 'mm', '--density', '2810']\n"
+            "runpy.run_module('bladesolid', run_name='__main__')\n")
+    t, r = _timed(lambda: subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, cwd=folder,
+                                         timeout=120))
+    row("6 refusals", "the same through python -m bladesolid mass, 2 GB address-space cap, whole process",
+        f"{t:.2f} s", f"exit {r.returncode}", "", "< 10 s", t < 10 and r.returncode == 2)
+    s = trimesh.creation.icosphere(subdivisions=1, radius=10.0)
+    nodes, elems = tetgen.TetGen(s.vertices, s.faces).tetrahedralize()[:2]
+    spin = d / "spin.msh"
+    meshio.write(str(spin), meshio.Mesh(np.asarray(nodes), [("tetra", np.asarray(elems))]), file_format="gmsh22",
+                 binary=False)
+    with open(spin, "a") as fh:
+        fh.write("$NodeData\n0\n1000000000000\n")
+    t, text = _timed(lambda: _refusal(spin))
+    row("6 refusals", "Gmsh file whose $NodeData count (1e12) runs past its end, read_mesh", f"{t:.2f} s",
+        "refused" if text != "LOADED" else "LOADED", "", "< 5 s", t < 5 and text != "LOADED")
+    # a few bad meshes through the whole command (in process)
+    from bladesolid.cli import main
+    from bladesolid.io import write_surface
+
+    box = trimesh.creation.box(extents=(100.0, 200.0, 300.0))
+    cases = {"garbage.stl": b"solid x\n this is not an STL\n", "truncated.stl": None, "open.stl": None}
+    (d / "garbage.stl").write_bytes(cases["garbage.stl"])
+    write_surface(d / "full.stl", box.vertices, box.faces)
+    (d / "truncated.stl").write_bytes((d / "full.stl").read_bytes()[:-30])
+    write_surface(d / "open.stl", box.vertices, box.faces[1:])
+    import contextlib
+    import io as _io
+
+    worst = 0.0
+    for name in cases:
+        with contextlib.redirect_stderr(_io.StringIO()), contextlib.redirect_stdout(_io.StringIO()):
+            t, rc = _timed(lambda: main(["loads", str(d / name), "--units", "mm", "--density", "2810", "--rpm",
+                                         "2500", "--json", str(d / "out.json")]))
+        worst = max(worst, t)
+    row("6 refusals", f"slowest refusal of {len(cases)} bad meshes through bladesolid loads (in process)",
+        f"{worst:.2f} s", "", "", "< 20 s", worst < 20)
+
+
+# --------------------------------------------------------------------------- 7. field copy
+
+
+def bench_field_copy():
+    from bladesolid import fieldres
+    from bladesolid.demo import large_blade_surface
+    from bladesolid.mesh import tetrahedralise_surface
+
+    print("[7] field copy of the 240 000-face blade", flush=True)
+    v, f = large_blade_surface(240_000)
+    v = v * 1e-3
+    t_simplify, (vc, fc) = _timed(lambda: fieldres.field_surface(v, f, 20_000))
+    t_mesh, (nodes, tets) = _timed(lambda: tetrahedralise_surface(vc, fc))
+    row("7 field copy", f"simplify {len(f):,} -> {len(fc):,} faces (checked copy)", f"{t_simplify:.2f} s", "", "",
+        "< 15 s", t_simplify < 15)
+    row("7 field copy", f"TetGen fill of the copy, facets preserved ({len(tets):,} tetrahedra)", f"{t_mesh:.2f} s",
+        "the full 240 k surface: 60-115 s (README)", "", "< 10 s", t_mesh < 10)
+
+
+# --------------------------------------------------------------------------- 8. batch
+
+
+def bench_batch(folder):
+    import logging
+
+    from distributed import Client, LocalCluster
+
+    from bladesolid import batch
+    from bladesolid.errors import InputError
+
+    print("[8] batch on a local dask cluster", flush=True)
+    jobs = Path(folder) / "batch_jobs"
+    jobs.mkdir(exist_ok=True)
+    for i in range(3):
+        (jobs / f"blade{i}.toml").write_text(f'name = "blade {i}"\nmesh = {json.dumps(str(DEMO))}\nunits = "mm"\n'
+                                             'material = "al-2025-t6"\n[[operating_point]]\nrpm = 2500\n')
+    t_serial, _ = _timed(lambda: batch.run_batch([jobs], Path(folder) / "serial", workers=0, force=True))
+
+    def on_cluster():
+        with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None,
+                          silence_logs=logging.ERROR) as cluster, Client(cluster) as client:
+            return batch.run_batch([jobs], Path(folder) / "cluster", client=client, force=True)
+
+    t_cluster, _ = _timed(on_cluster)
+    row("8 batch", "3 loads jobs on a local cluster of 2 worker processes (start-up included)", f"{t_cluster:.1f} s",
+        f"the same one after another in this process {t_serial:.1f} s", f"{t_cluster / t_serial:.1f}x", "< 60 s",
+        t_cluster < 60)
+
+    def unreachable():
+        try:
+            batch.run_batch([jobs], Path(folder) / "none", scheduler="tcp://127.0.0.1:9", connect_timeout_s=2)
+        except InputError:
+            return True
+        return False
+
+    t, refused = _timed(unreachable)
+    row("8 batch", "unreachable scheduler (connect timeout 2 s) refused", f"{t:.1f} s", "", "", "< 20 s",
+        refused and t < 20)
+# --------------------------------------------------------------------------- 9. isolation
 
 
 def bench_isolation(rounds):
-    print(f"[6] TetGen isolation, demo blade, {rounds} interleaved rounds", flush=True)
+    print(f"[9] TetGen isolation, demo blade, {rounds} interleaved rounds", flush=True)
     import trimesh
 
     from bladesolid import mesh
@@ -371,7 +484,7 @@ def bench_isolation(rounds):
     base = statistics.median(times["inline"])
     for k in ("fork", "spawn"):
         t = statistics.median(times[k])
-        row("6 isolation", f"TetGen on the demo blade ({len(f):,} faces), {k}ed child", f"{t:.3f} s",
+        row("9 isolation", f"TetGen on the demo blade ({len(f):,} faces), {k}ed child", f"{t:.3f} s",
             f"in this process {base:.3f} s", f"{t / base:.2f}x", "<= 1.15x" if k == "fork" else "",
             (t / base <= 1.15) if k == "fork" else None)
 
@@ -388,7 +501,7 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="smaller sizes (smoke test, not the figures)")
     ap.add_argument("--markdown", metavar="FILE", help="also write the table here")
-    ap.add_argument("--skip", default="", help="comma-separated sections to skip: kernel,surface,sweep,check,growth,mass,isolation")
+    ap.add_argument("--skip", default="", help="comma-separated sections to skip: kernel,surface,sweep,check,growth,mass,refusals,fieldcopy,batch,isolation")
     args = ap.parse_args(argv)
     skip = set(filter(None, args.skip.split(",")))
     t0 = time.perf_counter()
@@ -412,6 +525,12 @@ def main(argv=None) -> int:
             bench_growth(folder, [10_000, 100_000] if args.quick else [10_000, 100_000, 1_000_000])
         if "mass" not in skip:
             bench_mass_command(folder, 2 if args.quick else 5)
+        if "refusals" not in skip:
+            bench_refusals(folder)
+        if "fieldcopy" not in skip and not args.quick:
+            bench_field_copy()
+        if "batch" not in skip:
+            bench_batch(folder)
         if "isolation" not in skip:
             bench_isolation(3 if args.quick else 7)
     text = markdown()

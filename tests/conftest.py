@@ -1,4 +1,8 @@
-"""Shared fixtures: the shipped demo blade (metres) and small analytic solids."""
+"""Shared fixtures: the shipped demo blade (metres), its variants, and their comparisons.
+
+The comparisons of the demo variants with the demo blade are computed once per session and
+shared by the tests of the compare package (registration, deviation, limits, comparison).
+"""
 
 import os
 from pathlib import Path
@@ -26,3 +30,47 @@ def demo_mesh(demo_path):
     m.apply_scale(1e-3)
     assert m.is_watertight
     return m
+
+
+DEMO_RHO = 2810.0  # kg/m^3, the demo density (demo_variants.json "density_kg_m3")
+DEMO_RPM = 2500.0
+
+
+def demo_surfaces(name):
+    """The bodies of a shipped demo mesh as [(vertices m, faces)], in the file's own frame."""
+    from bladesolid.io import read_mesh
+
+    return [(b.vertices, b.faces) for b in read_mesh(MESHES / name, "mm").bodies]
+
+
+@pytest.fixture(scope="session")
+def reference():
+    """The demo blade, surface route (no elements), as the nominal of the comparisons."""
+    from bladesolid import api
+
+    return api.load_blade(MESHES / "demo_blade.stl", "mm", [f"{DEMO_RHO} kg/m^3"], elements=False)
+
+
+@pytest.fixture(scope="session")
+def scanned(reference):
+    """The scanned leading-edge blend (scanner frame), registered automatically."""
+    from bladesolid import compare
+
+    return compare.compare_blade(reference, demo_surfaces("demo_blade_le_blend_scanned.stl"), DEMO_RPM,
+                                 repaired_source="demo_blade_le_blend_scanned.stl")
+
+
+@pytest.fixture(scope="session")
+def blend_direct(reference):
+    """The same blend, un-moved, already in the reference frame (identity transform)."""
+    from bladesolid import compare
+
+    return compare.compare_blade(reference, demo_surfaces("demo_blade_le_blend.stl"), DEMO_RPM, transform=np.eye(4))
+
+
+@pytest.fixture(scope="session")
+def dressed(reference):
+    """The blade with its tip dressed back 12 mm, in the reference frame."""
+    from bladesolid import compare
+
+    return compare.compare_blade(reference, demo_surfaces("demo_blade_tip_dressed.stl"), DEMO_RPM, transform=np.eye(4))

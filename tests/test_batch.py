@@ -14,7 +14,6 @@ import math
 import os
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import numpy as np
@@ -132,19 +131,16 @@ def test_the_loads_command_gives_the_same_report(tmp_path, capsys):
 
 @pytest.mark.slow
 def test_batch_on_a_dask_local_cluster_gives_identical_numbers(tmp_path, reference):
-    pytest.importorskip("distributed")
     import logging
 
     from distributed import Client, LocalCluster
 
     jobs = write_jobs(tmp_path / "jobs")
     serial = batch.run_batch([jobs], tmp_path / "serial", workers=0)
-    t0 = time.perf_counter()
     with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None,
                       silence_logs=logging.ERROR) as cluster, Client(cluster) as client:
         res = batch.run_batch([jobs], tmp_path / "cluster", client=client)
         pids = {r["pid"] for r in res.rows}
-    assert time.perf_counter() - t0 < 60
     assert res.exit_status == 2
     check_rows(res.rows, reference)
     assert os.getpid() not in pids  # the work really ran in the worker processes
@@ -223,22 +219,13 @@ def test_bad_batch_inputs(tmp_path):
         batch.collect_jobs([empty])
     with pytest.raises(InputError, match="not found"):
         batch.collect_jobs([tmp_path / "nothing-here"])
-    with pytest.raises(InputError, match="--command"):
+    with pytest.raises(InputError, match="^command: "):
         batch.run_batch([empty], tmp_path / "o", command="span")
     with pytest.raises(InputError, match="does not exist"):
         batch.run_batch([write_jobs(tmp_path / "j")], tmp_path / "no" / "such" / "out", workers=0)
 
 
-def _cli_has_batch() -> bool:
-    from bladesolid.cli import build_parser
-
-    sub = next(a for a in build_parser()._actions if a.dest == "command")
-    return "batch" in sub.choices
-
-
 def test_batch_command_line(tmp_path, capsys):
-    if not _cli_has_batch():
-        pytest.skip("the batch subcommand is not registered in cli.py yet")
     from bladesolid.cli import main
 
     jobs = write_jobs(tmp_path / "jobs")
@@ -260,8 +247,6 @@ def test_batch_command_line(tmp_path, capsys):
 
 @pytest.mark.slow
 def test_batch_through_python_dash_m_on_local_worker_processes(tmp_path):
-    if not _cli_has_batch():
-        pytest.skip("the batch subcommand is not registered in cli.py yet")
     jobs = write_jobs(tmp_path / "jobs")
     out = tmp_path / "results"
     r = subprocess.run([sys.executable, "-m", "bladesolid", "batch", str(jobs), "--out", str(out), "--workers", "2"],
@@ -278,7 +263,6 @@ def test_batch_through_python_dash_m_on_local_worker_processes(tmp_path):
 def test_batch_through_a_scheduler_address(tmp_path, reference):
     # the --scheduler route: a scheduler and workers started elsewhere (here: a LocalCluster
     # of this test), reached only by its address, as a remote cluster would be
-    pytest.importorskip("distributed")
     import logging
 
     from distributed import LocalCluster
@@ -296,8 +280,6 @@ def test_unreachable_scheduler_is_one_input_error_and_no_folder(tmp_path):
     from bladesolid.errors import InputError
 
     jobs = write_jobs(tmp_path / "jobs")
-    t0 = time.perf_counter()
     with pytest.raises(InputError, match="cannot reach the dask scheduler"):
         batch.run_batch([jobs], tmp_path / "out", scheduler="tcp://127.0.0.1:9", connect_timeout_s=2)
-    assert time.perf_counter() - t0 < 20
     assert not (tmp_path / "out").exists()

@@ -2,8 +2,8 @@
 
 import math
 import tomllib
+from pathlib import Path
 
-import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -29,6 +29,24 @@ def test_example_job_parses_and_means_what_it_says(tmp_path):
     assert job.sweep_deg == (-10.0, 90.0, 1.0)
     assert job.mesh.endswith("demo_blade.stl") and job.mesh.startswith(str(tmp_path))
     assert job.angle_line == "chord" and job.rated_rpm == 2500
+
+
+def test_readme_shows_the_one_example_job():
+    # the README's job file is EXAMPLE_JOB, the same text `bladesolid demo` writes
+    readme = (Path(__file__).resolve().parents[1] / "README.md").read_text(encoding="utf-8")
+    assert f"```toml\n{EXAMPLE_JOB}```" in readme
+
+
+def test_example_job_sets_the_demo_blade_at_its_modelled_angle():
+    # the demo blade is modelled at 25 deg at 0.75 R (bladesolid.demo.BladeParams); take-off and
+    # overspeed run there, and the counterweight is sized at take-off
+    from bladesolid.demo import BladeParams
+
+    job = build_job(tomllib.loads(EXAMPLE_JOB), "job.toml", ".")
+    p = BladeParams()
+    assert job.reference_fraction == p.reference_radius_fraction
+    assert [o.blade_angle_deg for o in job.operating_points] == [p.blade_angle_ref_deg, 28.0, p.blade_angle_ref_deg]
+    assert job.counterweight is not None and job.counterweight.blade_angle_deg is None
 
 
 def test_flag_overrides_key():

@@ -13,7 +13,6 @@ import errno
 import json
 import os
 import stat
-import time
 from pathlib import Path
 
 import pytest
@@ -294,17 +293,8 @@ def test_same_path_for_two_outputs_is_refused_before_writing(tmp_path, capsys):
     assert not target.exists()
 
 
-def _check_available() -> bool:
-    from bladesolid.cli import build_parser
-
-    sub = next(a for a in build_parser()._actions if a.dest == "command")
-    return "check" in sub.choices
-
-
 @pytest.mark.slow
 def test_check_interrupted_while_writing_leaves_no_folder(tmp_path, capsys, monkeypatch):
-    if not _check_available():
-        pytest.skip("the `check` command is not wired into the CLI yet")
     job = tmp_path / "job.toml"
     job.write_text(f'mesh = {json.dumps(str(DEMO))}\nunits = "mm"\ndensity = "2810 kg/m^3"\nrpm = 2500\n'
                    'stations = 4\n')
@@ -323,11 +313,9 @@ def test_check_interrupted_while_writing_leaves_no_folder(tmp_path, capsys, monk
 
     monkeypatch.setattr(builtins, "open", flaky_open)
     out = tmp_path / "review"
-    t0 = time.perf_counter()
     code, _, err = run(["check", job, "--out", out], capsys)
     monkeypatch.undo()
     assert code == 130, err
     assert count["n"] == 3, "the interruption did not happen inside the staged folder"
     assert not out.exists()
     assert temporaries(tmp_path) == []
-    assert time.perf_counter() - t0 < 120

@@ -1,4 +1,4 @@
-"""Geometry checks of the parametric demo blade (bladesolid.demo) and of the committed meshes."""
+"""The demo (bladesolid.demo): geometry of the parametric blade, the committed meshes, the demo folder."""
 
 from __future__ import annotations
 
@@ -316,3 +316,23 @@ def test_write_demo_meshes_is_reproducible(tmp_path):
         assert rec_new["params"] == rec_old["params"]
         assert rec_new["faces"] == rec_old["faces"]
         assert rec_new["volume_mm3"] == pytest.approx(rec_old["volume_mm3"], rel=1e-9)
+
+
+def test_write_demo_writes_the_one_example_job_and_a_consistent_repair_scenario(tmp_path):
+    import tomllib
+
+    from bladesolid.compare import read_limits
+    from bladesolid.job import EXAMPLE_JOB, load_job
+
+    paths = demo.write_demo(tmp_path / "demo")
+    assert open(paths["job"], encoding="utf-8").read() == EXAMPLE_JOB
+    for key in ("job", "repair_job"):
+        job = load_job(paths[key])
+        assert Path(job.mesh).exists(), job.mesh
+        # every operating point of the demo sits at an angle the blade can be set to; take-off
+        # at the angle the blade is modelled at (25 deg at 0.75 R, BladeParams)
+        assert job.operating_points[0].blade_angle_deg == demo.BladeParams().blade_angle_ref_deg
+    repair = load_job(paths["repair_job"])
+    assert Path(repair.reference).exists() and Path(repair.limits) == Path(paths["repair_limits"])
+    assert read_limits(paths["repair_limits"]).source.startswith("Larkspur")
+    assert tomllib.loads(demo.REPAIR_LIMITS)["source"].endswith("(invented)")

@@ -1,0 +1,270 @@
+"""One function per sub-command: read the arguments, call the library, write the outputs, print.
+
+Nothing is computed or assembled here: the figures come from :mod:`bladesolid.api`,
+:mod:`bladesolid.review` and :mod:`bladesolid.compare`, the JSON reports from
+:mod:`bladesolid.report`, the terminal tables from :mod:`bladesolid.cli.printing`. Outputs
+are checked before any work (:func:`~bladesolid.cli.options.check_outputs`).
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import os
+import sys
+
+import numpy as np
+
+from ..errors import InputError
+from ..job import require_operating_points
+from . import printing
+from .options import UsageError, check_outputs, job_of, job_keys
+
+__all__ = ["cmd_batch", "cmd_check", "cmd_compare", "cmd_demo", "cmd_loads", "cmd_mass", "cmd_match",
+           "cmd_materials", "cmd_span", "cmd_view"]
+
+
+def _blade(args, *, elements: bool, speed: bool = True):
+    """(job, blade, stderr console): the validated job of the arguments (with an operating
+    point when ``speed``) and its blade, loaded with the stages shown and its warnings printed."""
+    from .. import api
+
+    job = job_of(args)
+    if speed:
+        require_operating_points(job)
+    err = printing.console(stderr=True)
+    blade = api.blade_from_job(job, elements=elements, progress=printing.progress(err))
+    printing.warn(err, blade)
+    return job, blade, err
+
+
+def cmd_mass(args) -> int:
+    """Mass, CG, inertia tensors and static moment."""
+    from .. import report
+
+    check_outputs(args.force, args.json)
+    _, blade, err = _blade(args, elements=args.check_elements, speed=False)
+    props = blade.mass_properties()
+    if not props.surface_check_ok:
+        err.print(f"[yellow]warning:[/yellow] the two independent routes to the moments disagree by "
+                  f"{props.surface_check_rel_error:.1e} ({props.surface_check_method}); the surface may be "
+                  "self-intersecting or overlapping — check the mesh")
+    if args.json:
+        report.atomic_write_text(args.json, report.dumps(report.mass_report(blade, props)), args.force)
+    printing.print_mass(printing.console(), blade, props, args.us)
+    return 0
+
+
+def cmd_loads(args) -> int:
+    """Centrifugal loads at every operating point, the sweeps, the proof load, the counterweight."""
+    from .. import api, report
+    from ..review import loads_report
+
+    check_outputs(args.force, args.json, args.csv, args.plot, args.rpm_csv, args.rpm_plot)
+    job, blade, _ = _blade(args, elements=False)
+    ops = api.loads_for_job(blade, job)
+    data = loads_report(blade, job, ops)
+    if (args.rpm_csv or args.rpm_plot) and "rpm_sweep" not in data:
+        raise InputError("--rpm-sweep", "give the speed range (--rpm-sweep FROM:TO:STEP) for --rpm-csv / --rpm-plot")
+    if args.csv:
+        report.atomic_write_text(args.csv, report.csv_text(data["pitch_sweep"]), args.force)
+    if args.rpm_csv:
+        report.atomic_write_text(args.rpm_csv, report.csv_text(data["rpm_sweep"]), args.force)
+    if args.plot or args.rpm_plot:
+        from .. import views
+
+        if args.plot:
+            lo, hi, step = job.sweep_deg
+            betas, ctm, k = api.pitch_sweep(blade, ops[0].rpm, lo, hi, step)
+            views.plot_ctm_sweep(betas, ctm, k, ops[0].blade_angle_deg, args.plot,
+                                 title=f"{blade.name} — CTM at {ops[0].rpm:g} rpm", force=args.force)
+        if args.rpm_plot:
+            rows = data["rpm_sweep"]
+            views.plot_rpm_sweep(np.array([r["rpm"] for r in rows]), np.array([r["ctm_Nm"] for r in rows]),
+                                 np.array([r["radial_pull_N"] for r in rows]), args.rpm_plot,
+                                 title=f"{blade.name} — at {ops[0].blade_angle_deg:.4g} deg",
+                                 operating_rpm=ops[0].rpm, force=args.force)
+    if args.json:
+        report.atomic_write_text(args.json, report.dumps(data), args.force)
+    printing.print_loads(printing.console(), blade, data, args.us)
+    return 0
+
+
+def cmd_check(args) -> int:
+    """The whole review: JSON, CSV, plots, renders, VTU and HTML in one folder."""
+    from .. import review
+    from ..job import load_job
+
+    if not str(args.job).lower().endswith(".toml"):
+        raise InputError(args.job, "check takes a job file (.toml); see `bladesolid demo` for an example")
+    job = load_job(args.job, job_keys(args))
+    err = printing.console(stderr=True)
+    show, prog = printing.stage_progress(err)
+    if prog is not None:
+        prog.start()
+    try:
+        rv = review.check(job, args.out, args.force, show)
+    finally:
+        if prog is not None:
+            prog.stop()
+    printing.warn(err, rv.blade)
+    con = printing.console()
+    printing.print_loads(con, rv.blade, rv.report, args.us)
+    con.print(f"review written to [bold]{printing.esc(args.out)}[/bold]: " + ", ".join(rv.files))
+    con.print(f"open {printing.esc(os.path.join(args.out, 'report.html'))} in a browser for the whole review")
+    cmp_ = rv.report.get("comparison")
+    if cmp_ is not None and cmp_.get("verdict") == "outside limits":
+        con.print("[bold red]comparison: outside limits[/bold red] — " + "; ".join(cmp_.get("reasons", [])))
+        return 1
+    return 0
+
+
+def cmd_demo(args) -> int:
+    """Write the demo blade, its jobs and limits into DIR and run `check` on the demo job."""
+    from ..demo import write_demo
+    from ..safefile import check_new_folder
+
+    check_new_folder(args.dir, args.force)
+    paths = write_demo(args.dir)
+    code = cmd_check(argparse.Namespace(job=paths["job"], out=os.path.join(args.dir, "review"), force=True,
+                                        us=args.us))
+    # the command as the user typed it (e.g. .venv/bin/bladesolid), so the hint can be pasted
+    prog = sys.argv[0] if os.path.basename(sys.argv[0]) == "bladesolid" else "bladesolid"
+    printing.console().print(
+        f"next: the repair scenario — {printing.esc(prog)} check {printing.esc(paths['repair_job'])} "
+        f"--out {printing.esc(os.path.join(args.dir, 'repair-review'))}")
+    return code
+
+
+def cmd_view(args) -> int:
+    """Open an interactive 3-D window of one per-element field (needs a display)."""
+    from .. import fields, views
+
+    if not views.has_display():
+        raise InputError("view", "no display to open a window on (DISPLAY is not set); the PNG renders of "
+                                 "`bladesolid check` show the same fields")
+    job, blade, _ = _blade(args, elements=True)
+    op = job.operating_points[0]
+    f = blade.fields(op.rpm, op.blade_angle_deg, op.pitch_change_deg)
+    views.render_field(blade, f, args.field, None, view=args.view, hotspots=fields.hot_spots(blade, f))
+    return 0
+
+
+def cmd_materials(args) -> int:
+    """The built-in material table, with sources."""
+    from ..materials import MATERIALS
+
+    printing.print_materials(printing.console(), MATERIALS.values())
+    return 0
+
+
+def cmd_span(args) -> int:
+    """Spanwise table: exact station cuts, section properties, centrifugal tension and stress."""
+    from .. import report
+    from ..span import SPAN_NOTE, plot_span, spanwise_rows
+
+    check_outputs(args.force, args.json, args.csv, args.plot)
+    job, blade, _ = _blade(args, elements=True)
+    op = job.operating_points[0]
+    table = blade.span(op.rpm, op.blade_angle_deg, op.pitch_change_deg, stations=job.stations,
+                       allowable_Pa=job.allowable_Pa)
+    rows = spanwise_rows(table)
+    if args.json:
+        report.atomic_write_text(args.json, report.dumps(report.span_report(blade, op, table, rows, SPAN_NOTE)),
+                                 args.force)
+    if args.csv:
+        report.atomic_write_text(args.csv, report.csv_text(spanwise_rows(table, flat=True)), args.force)
+    if args.plot:
+        plot_span(table, args.plot, args.force)
+    printing.print_span(printing.console(), blade, table, rows, op, args.us)
+    return 0
+
+
+def cmd_compare(args) -> int:
+    """A repaired / re-profiled blade against its reference: registration, deviation, volumes,
+    deltas and the verdict against the user's limits (exit 1 when outside them)."""
+    from .. import compare, report
+    from ..review import compare_job
+
+    check_outputs(args.force, args.json, args.deviation_png)
+    job = job_of(args)
+    if job.reference is None:
+        raise InputError("--reference", "compare needs the reference (nominal) blade: --reference MESH")
+    require_operating_points(job)
+    err = printing.console(stderr=True)
+    result, reference, repaired = compare_job(job, transform=args.transform, reference_units=args.reference_units,
+                                              progress=printing.progress(err))
+    printing.warn(err, reference)
+    for w in repaired.warnings:
+        err.print(f"[yellow]warning:[/yellow] {printing.esc(job.mesh)}: {printing.esc(w)}")
+    for w in result.warnings:
+        err.print(f"[yellow]warning:[/yellow] {printing.esc(w)}")
+    if args.deviation_png:
+        from ..views import render_deviation
+
+        d = result.deviation
+        render_deviation(d.vertices, d.faces, d.values, args.deviation_png, frame=reference.frame,
+                         title=f"Deviation — {result.repaired_name}", force=args.force)
+    if args.json:
+        section = compare.comparison_section(result)
+        section["deviation_png"] = args.deviation_png
+        data = report.compare_report(job, section, [*reference.warnings, *repaired.warnings, *result.warnings],
+                                     transform=args.transform, reference_units=args.reference_units)
+        report.atomic_write_text(args.json, report.dumps(data), args.force)
+    printing.print_compare(printing.console(), result, args.us)
+    return 1 if result.verdict == "outside limits" else 0
+
+
+def cmd_match(args) -> int:
+    """Assign the blades of a set to hub positions for the smallest static imbalance."""
+    from .. import compare, report
+
+    check_outputs(args.force, args.json, args.plot)
+    if args.rpm is not None and not (math.isfinite(args.rpm) and args.rpm >= 0):
+        raise InputError("--rpm", f"must be a non-negative number, got {args.rpm}")
+    blades = [compare.read_set_report(p) for p in args.reports]
+    result, rpm, warnings = compare.match_set(blades, rpm=args.rpm)
+    section = compare.match_section(result, blades, rpm, warnings)
+    err = printing.console(stderr=True)
+    for w in warnings:
+        err.print(f"[yellow]warning:[/yellow] {printing.esc(w)}")
+    if args.json:
+        report.atomic_write_text(args.json, report.dumps(report.match_report(args.reports, section, warnings)),
+                                 args.force)
+    if args.plot:
+        from ..views import plot_match
+
+        plot_match(report.jsonable(section), args.plot, force=args.force)
+    printing.print_match(printing.console(), section, args.us)
+    return 0
+
+
+def cmd_batch(args) -> int:
+    """Many job files in parallel (this machine, or a dask cluster), one summary table."""
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn, TimeRemainingColumn
+    from rich.text import Text
+
+    from .. import batch
+
+    if args.workers is not None and args.workers < 0:
+        raise InputError("--workers", f"must be 0 (run in this process) or more, got {args.workers}")
+    if args.workers is not None and args.scheduler:
+        raise UsageError("bladesolid batch: give either --workers (this machine) or --scheduler (a cluster), not both")
+    jobs = batch.collect_jobs(args.inputs)
+    err = printing.console(stderr=True)
+    shown = Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
+                     TimeRemainingColumn(), console=err, disable=not err.is_terminal)
+    task = shown.add_task(f"{args.command} of {len(jobs)} blades", total=len(jobs))
+
+    def on_done(row, done, total):
+        shown.update(task, completed=done)
+        if row["status"] not in (batch.OK, batch.OUTSIDE) and err.is_terminal:
+            shown.console.print(Text(f"failed: {row['reason']}", style="red"))
+
+    with shown:
+        result = batch.run_batch(jobs, args.out, command=args.command, force=args.force, scheduler=args.scheduler,
+                                 workers=args.workers, on_done=on_done)
+    printing.print_batch(printing.console(), result, args.command, args.out)
+    for r in result.failures:
+        print(f"bladesolid: error: {r['reason']}", file=sys.stderr)
+    return result.exit_status
