@@ -230,7 +230,7 @@ def pair(Ti, Fi, Tj, Fj, eps):
 
 
 @njit(cache=True)
-def test_block(v, f, geo, eps, cand, n_cand, c, counts, out_pairs, out_centres, boxes, sums):
+def check_block(v, f, geo, eps, cand, n_cand, c, counts, out_pairs, out_centres, boxes, sums):
     """Test the candidate pairs ``cand[:n_cand]``; record the hits in row c of the outputs."""
     for t in range(n_cand):
         i, j = cand[t, 0], cand[t, 1]
@@ -310,7 +310,7 @@ def chunk_pairs(c, v, f, geo, lo, hi, origin, cell, dims, starts, ends, cell_key
                     cand[n_cand, 0], cand[n_cand, 1] = fi, fj
                     n_cand += 1
                     if n_cand == BLOCK:
-                        test_block(v, f, geo, eps, cand, n_cand, c, counts, out_pairs, out_centres, boxes, sums)
+                        check_block(v, f, geo, eps, cand, n_cand, c, counts, out_pairs, out_centres, boxes, sums)
                         n_cand = 0
             continue
         # a crowded cell (small faces where most of the surface has larger ones): a grid of
@@ -384,9 +384,9 @@ def chunk_pairs(c, v, f, geo, lo, hi, origin, cell, dims, starts, ends, cell_key
                     cand[n_cand, 0], cand[n_cand, 1] = fi, fj
                     n_cand += 1
                     if n_cand == BLOCK:
-                        test_block(v, f, geo, eps, cand, n_cand, c, counts, out_pairs, out_centres, boxes, sums)
+                        check_block(v, f, geo, eps, cand, n_cand, c, counts, out_pairs, out_centres, boxes, sums)
                         n_cand = 0
-    test_block(v, f, geo, eps, cand, n_cand, c, counts, out_pairs, out_centres, boxes, sums)
+    check_block(v, f, geo, eps, cand, n_cand, c, counts, out_pairs, out_centres, boxes, sums)
 
 
 @njit(cache=True, parallel=True)

@@ -27,9 +27,11 @@ when coplanar, are such points). So a pair is decided by clipping edges against 
 triangle — a segment against a plane, then against the three in-plane edge half-planes
 (Liang–Barsky), coplanar segments included — after the plane-side rejection of Möller (1997,
 "A fast triangle-triangle intersection test", J. Graphics Tools 2(2)). Candidate pairs come
-from a uniform grid of the padded face bounding boxes; each pair is tested once, in the cell
-holding the low corner of the two boxes' overlap. numba kernels (``cache=True``), parallel
-over interleaved groups of cells.
+from a uniform grid of the padded face bounding boxes (cell edge: the median face size; a
+crowded cell gets a finer grid of its own); each pair is tested once, in the cell holding the
+low corner of the two boxes' overlap. numba kernels (``cache=True``, in
+``bladesolid/_selfintersect_kernels.py``), parallel over interleaved groups of cells.
+Measured in ``scripts/bench.py`` (section 6) against the closed-surface integral.
 """
 
 from __future__ import annotations
@@ -37,6 +39,8 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+
+from .errors import InputError
 
 #: default distance tolerance, relative to the bounding-box diagonal of the surface
 DEFAULT_REL_TOL = 1e-9
@@ -105,10 +109,12 @@ def self_intersections(vertices: np.ndarray, faces: np.ndarray, *, tol: float | 
     """
     v = np.asarray(vertices, dtype=np.float64)
     f = np.ascontiguousarray(faces, dtype=np.int64)
-    if v.ndim != 2 or v.shape[1] != 3 or f.ndim != 2 or f.shape[1] != 3:
-        raise ValueError("vertices must be (n, 3) and faces (m, 3)")
+    if v.ndim != 2 or v.shape[1] != 3:
+        raise InputError("vertices", f"expected an (n, 3) array of coordinates, got shape {v.shape}")
+    if f.ndim != 2 or f.shape[1] != 3:
+        raise InputError("faces", f"expected an (m, 3) array of vertex indices, got shape {f.shape}")
     if len(f) and (f.min() < 0 or f.max() >= len(v)):
-        raise ValueError("faces refer to vertices that do not exist")
+        raise InputError("faces", f"vertex indices must lie in 0..{len(v) - 1}")
     limit = max(int(limit), 0)
     empty = SelfIntersections(0, np.zeros((0, 2), np.int64), np.full(3, np.nan), np.full(3, np.nan),
                               np.full(3, np.nan), 0.0 if tol is None else float(tol), 0)
@@ -117,11 +123,13 @@ def self_intersections(vertices: np.ndarray, faces: np.ndarray, *, tol: float | 
     mask = np.zeros(len(v), np.bool_)
     mask[f.ravel()] = True
     used = v[mask]
+    if not np.isfinite(used).all():
+        raise InputError("vertices", "coordinates must be finite numbers")
     lo_all, hi_all = used.min(axis=0), used.max(axis=0)
     diag = float(np.linalg.norm(hi_all - lo_all))
     eps = float(rel_tol) * diag if tol is None else float(tol)
     if not np.isfinite(eps) or eps < 0:
-        raise ValueError(f"tol must be a finite distance >= 0, got {eps!r}")
+        raise InputError("tol" if tol is not None else "rel_tol", f"expected a finite distance >= 0, got {eps!r}")
     centre = 0.5 * (lo_all + hi_all)
     vc = np.ascontiguousarray(v - centre)  # coordinates about the centre: smaller round-off
 
