@@ -416,3 +416,65 @@ def test_bad_arrays_and_tolerances_name_the_parameter():
         self_intersections(np.array([[0.0, 0, 0], [1, 0, 0], [0, np.inf, 0]]), np.array([[0, 1, 2], [0, 2, 1]]))
     with pytest.raises(InputError, match="^tol: "):
         self_intersections(np.eye(3), np.array([[0, 1, 2], [0, 2, 1]]), tol=-1.0)
+
+
+# --------------------------------------------------------------------------- impossible tensors
+
+
+def test_the_integral_over_a_pierced_box_is_an_impossible_tensor():
+    from bladesolid.moments import check_physical_inertia, surface_volume_moments
+
+    # the spike's apex through the bottom face: the divergence-theorem integral counts the
+    # part of the spike below the box negatively (constructed: box 2 x 2 x 1, volume 4)
+    v, f = spiked_box([0.0, 0.0, -1.0])
+    assert self_intersections(v, f).count > 0
+    m = surface_volume_moments(v, f).scaled(2810.0)
+    assert m.mass == pytest.approx(2810.0 * 4 / 3, rel=1e-12)  # 4 - 8/3: far from the box's 4
+    with pytest.raises(InputError, match=r"^blade\.stl: the inertia tensor is impossible .*I1 \+ I2 < I3.*"
+                                         r"self-intersecting or inside-out$"):
+        check_physical_inertia(m, "blade.stl")
+    # deeper: the negative part outweighs the rest
+    deep = surface_volume_moments(*spiked_box([0.0, 0.0, -3.0]))
+    with pytest.raises(InputError, match="mass is -1.333 kg, not positive"):
+        check_physical_inertia(deep, "blade.stl")
+    with pytest.raises(InputError, match="a negative principal moment and I1 \\+ I2 < I3"):
+        check_physical_inertia(deep.inertia(), "blade.stl")
+    # the clean box wound inside out
+    box = trimesh.creation.box([2.0, 2.0, 1.0])
+    with pytest.raises(InputError, match="not positive"):
+        check_physical_inertia(surface_volume_moments(box.vertices, box.faces[:, ::-1]), "blade.stl")
+
+
+def test_marks_box_and_a_thin_plate_are_physical():
+    from bladesolid.moments import check_physical_inertia, surface_volume_moments
+
+    # rectangular block about its centroid: I = m (b² + c²)/12 etc. (Marks' Standard Handbook
+    # for Mechanical Engineers, table of mass moments of inertia — from memory)
+    a, b, c, rho = 0.3, 0.05, 0.02, 2810.0
+    box = trimesh.creation.box([a, b, c])
+    box.apply_translation([0.1, 0.7, -0.02])
+    m = surface_volume_moments(box.vertices, box.faces).scaled(rho)
+    mass = rho * a * b * c
+    expected = sorted([mass * (b**2 + c**2) / 12, mass * (a**2 + c**2) / 12, mass * (a**2 + b**2) / 12])
+    assert np.allclose(check_physical_inertia(m, "box"), expected, rtol=1e-11)
+    # a plate 1e-5 of its width thick: I1 + I2 - I3 = 2 ∫ z² dm is ~1e-10 of the trace
+    plate = trimesh.creation.box([1.0, 1.0, 1e-5])
+    plate.apply_transform(rotation(4))
+    p = check_physical_inertia(surface_volume_moments(plate.vertices, plate.faces), "plate")
+    assert 0 < p[0] + p[1] - p[2] < 1e-9 * p.sum()
+
+
+@pytest.mark.parametrize("scale", [1.0, 1e-9, 1e6])
+def test_the_round_off_allowance_is_relative_to_the_trace(scale):
+    from bladesolid.moments import PHYSICAL_REL_TOL, check_physical_inertia
+
+    # principal moments 1, 2, 3 + d (trace 6 + d, turned to general axes): I1 + I2 - I3 = -d
+    R = rotation(9)[:3, :3]
+    for excess, refused in ((0.5, False), (2.0, True)):
+        d = excess * PHYSICAL_REL_TOL * 6.0
+        tensor = scale * (R @ np.diag([1.0, 2.0, 3.0 + d]) @ R.T)
+        if refused:
+            with pytest.raises(InputError, match="I1 \\+ I2 < I3"):
+                check_physical_inertia(tensor, "t")
+        else:
+            check_physical_inertia(tensor, "t")
