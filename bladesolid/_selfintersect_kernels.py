@@ -12,7 +12,6 @@ vertex indices are a tuple ``F`` of 3 ints.
 
 from __future__ import annotations
 
-import numba
 import numpy as np
 from numba import njit
 
@@ -22,11 +21,11 @@ BIG_CELL = 256
 BLOCK = 4096
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, nogil=True)
 def prepare(v, f, eps, deg2, geo, lo, hi, degenerate):
     """Per face: unit normal and inward unit in-plane edge normals (``geo`` (m, 12)), bounding
     box padded by eps, and whether twice its area is at most deg2 (degenerate)."""
-    for i in numba.prange(f.shape[0]):
+    for i in range(f.shape[0]):
         a, b, c = f[i, 0], f[i, 1], f[i, 2]
         ux, uy, uz = v[b, 0] - v[a, 0], v[b, 1] - v[a, 1], v[b, 2] - v[a, 2]
         wx, wy, wz = v[c, 0] - v[a, 0], v[c, 1] - v[a, 1], v[c, 2] - v[a, 2]
@@ -51,10 +50,10 @@ def prepare(v, f, eps, deg2, geo, lo, hi, degenerate):
             hi[i, d] = max(x0, max(x1, x2)) + eps
 
 
-@njit(cache=True, parallel=True)
+@njit(cache=True, nogil=True)
 def ranges(lo, hi, degenerate, origin, cell, dims, c0, c1, per):
     """Range of grid cells each face box reaches, and how many cells that is (0 if degenerate)."""
-    for i in numba.prange(lo.shape[0]):
+    for i in range(lo.shape[0]):
         n = 1
         for d in range(3):
             a = cell_of(lo[i, d], origin[d], cell, dims[d])
@@ -283,10 +282,14 @@ def owner(lo_i, hi_i, lo_j, hi_j, o, size, n):
     return cell_of(x0, o[0], size, n[0]), cell_of(y0, o[1], size, n[1]), cell_of(z0, o[2], size, n[2])
 
 
-@njit(cache=True)
+@njit(cache=True, nogil=True)
 def chunk_pairs(c, v, f, geo, lo, hi, origin, cell, dims, starts, ends, cell_keys, members, eps, counts, out_pairs,
                 out_centres, boxes, sums):
-    """The candidate pairs of cells c, c + nchunk, c + 2 nchunk, ..., tested in blocks."""
+    """Every intersecting pair among the faces sharing cells c, c + nchunk, c + 2 nchunk, ...
+    (nchunk = len(counts); interleaved cells give each thread an even share), tested in blocks.
+    Row c of the outputs receives the number of hits, the first ones (pairs and the centres of
+    their common parts), the sum of those centres and the box of the common parts. Releases
+    the GIL: rows are filled by several threads at once."""
     nchunk = counts.shape[0]
     o3 = (origin[0], origin[1], origin[2])
     n3 = (dims[0], dims[1], dims[2])
@@ -387,15 +390,3 @@ def chunk_pairs(c, v, f, geo, lo, hi, origin, cell, dims, starts, ends, cell_key
                         check_block(v, f, geo, eps, cand, n_cand, c, counts, out_pairs, out_centres, boxes, sums)
                         n_cand = 0
     check_block(v, f, geo, eps, cand, n_cand, c, counts, out_pairs, out_centres, boxes, sums)
-
-
-@njit(cache=True, parallel=True)
-def pairs_kernel(v, f, geo, lo, hi, origin, cell, dims, starts, ends, cell_keys, members, eps, counts, out_pairs,
-                 out_centres, boxes, sums):
-    """Every intersecting pair among the faces sharing a cell. Row c of the outputs gathers
-    cells c, c + nchunk, c + 2 nchunk, ... (interleaved: an even share per thread): the number
-    of hits, the first ones (pairs and the centres of their common parts), the sum of those
-    centres and the box of the common parts."""
-    for c in numba.prange(counts.shape[0]):
-        chunk_pairs(c, v, f, geo, lo, hi, origin, cell, dims, starts, ends, cell_keys, members, eps, counts,
-                    out_pairs, out_centres, boxes, sums)

@@ -30,7 +30,8 @@ triangle — a segment against a plane, then against the three in-plane edge hal
 from a uniform grid of the padded face bounding boxes (cell edge: the median face size; a
 crowded cell gets a finer grid of its own); each pair is tested once, in the cell holding the
 low corner of the two boxes' overlap. numba kernels (``cache=True``, in
-``bladesolid/_selfintersect_kernels.py``), parallel over interleaved groups of cells.
+``bladesolid/_selfintersect_kernels.py``); the pair tests run on numba's number of threads
+(the kernel releases the GIL), over interleaved groups of cells.
 Measured in ``scripts/bench.py`` (section 6) against the closed-surface integral.
 """
 
@@ -151,8 +152,19 @@ def self_intersections(vertices: np.ndarray, faces: np.ndarray, *, tol: float | 
     boxes[:, :3] = np.inf
     boxes[:, 3:] = -np.inf
     sums = np.zeros((nchunk, 3))
-    k["pairs"](vc, f, geo, lo, hi, origin, cell, dims, starts, ends, cell_keys, members, eps, counts, pairs,
-               centres, boxes, sums)
+    def run(rows):
+        for c in rows:
+            k["pairs"](c, vc, f, geo, lo, hi, origin, cell, dims, starts, ends, cell_keys, members, eps, counts,
+                       pairs, centres, boxes, sums)
+
+    threads = min(_threads(), nchunk)
+    if threads > 1 and len(starts) > 1000:
+        from concurrent.futures import ThreadPoolExecutor
+
+        with ThreadPoolExecutor(max_workers=threads) as pool:
+            list(pool.map(run, [range(t, nchunk, threads) for t in range(threads)]))
+    else:
+        run(range(nchunk))
     count = int(counts.sum())
     n_deg = int(degenerate.sum())
     if not count:
@@ -233,4 +245,11 @@ def _kernels() -> dict:
     """The numba kernels (compiled on first use, cached on disk across processes)."""
     from . import _selfintersect_kernels as k
 
-    return {"prepare": k.prepare, "ranges": k.ranges, "fill": k.fill, "bucket": k.bucket, "pairs": k.pairs_kernel}
+    return {"prepare": k.prepare, "ranges": k.ranges, "fill": k.fill, "bucket": k.bucket, "pairs": k.chunk_pairs}
+
+
+def _threads() -> int:
+    """Threads for the pair tests: numba's setting (``NUMBA_NUM_THREADS``, ``set_num_threads``)."""
+    import numba
+
+    return max(1, int(numba.get_num_threads()))
