@@ -13,7 +13,8 @@ The inertia tensor is ``I = tr(S)·1 − S`` (docs/CONVENTIONS.md §3).
 Two independent routes give the totals: the tetrahedral mass elements (closed form for a
 linear tetrahedron, Tonon 2004) and the closed surface alone (divergence theorem over the
 signed tetrahedra that each face makes with a reference point). The numba kernels of the
-package live in this module only.
+integrals live in this module. :func:`check_physical_inertia` refuses a tensor that no solid
+can have (what a self-intersecting or inside-out surface integrates to).
 """
 
 from __future__ import annotations
