@@ -69,29 +69,13 @@ def surface_problems(vertices: np.ndarray, faces: np.ndarray) -> list[str]:
     return out
 
 
-def _segments_cross(p, q, a, b, c, eps=1e-9):
-    """(k,) bool: segment p→q passes through the interior of triangle abc (strictly: touching
-    at an end point, an edge or a shared vertex does not count). Möller & Trumbore 1997."""
-    e1, e2, d = b - a, c - a, q - p
-    h = np.cross(d, e2)
-    det = np.einsum("ij,ij->i", e1, h)
-    ok = np.abs(det) > eps * np.linalg.norm(e1, axis=1) * np.linalg.norm(e2, axis=1) * np.linalg.norm(d, axis=1)
-    inv = np.divide(1.0, det, out=np.zeros_like(det), where=ok)
-    s = p - a
-    u = np.einsum("ij,ij->i", s, h) * inv
-    qv = np.cross(s, e1)
-    w = np.einsum("ij,ij->i", d, qv) * inv
-    t = np.einsum("ij,ij->i", e2, qv) * inv
-    return ok & (u > eps) & (w > eps) & (u + w < 1 - eps) & (t > eps) & (t < 1 - eps)
-
-
 def self_intersections(vertices: np.ndarray, faces: np.ndarray, limit: int = 10) -> np.ndarray:
-    """Pairs of faces (up to ``limit``) that cross each other; (k, 2) int, empty when none.
+    """Pairs of faces (up to ``limit``) that meet beyond their shared vertices; (k, 2) int,
+    empty when none.
 
-    Faces sharing an edge are neighbours and are not tested against each other (a fold
-    between them is caught by :func:`folded_edges`); for faces sharing one vertex only the
-    edges away from it are tested (touching at the vertex is not a crossing).
-    Coplanar overlaps are not detected. Broad phase: an R-tree of the face bounding boxes.
+    The project's one self-intersection check, :func:`bladesolid.selfintersect.self_intersections`
+    (crossing, touching, coplanar overlap, faces folded flat onto each other across an edge);
+    a fold that is sharp but not flat is :func:`folded_edges`'s business.
 
     >>> import trimesh
     >>> a, b = trimesh.creation.box(), trimesh.creation.box()
@@ -100,45 +84,9 @@ def self_intersections(vertices: np.ndarray, faces: np.ndarray, limit: int = 10)
     >>> len(self_intersections(a.vertices, a.faces)), len(self_intersections(m.vertices, m.faces)) > 0
     (0, True)
     """
-    from rtree import index
+    from .selfintersect import self_intersections as check
 
-    v = np.asarray(vertices, dtype=float)
-    f = np.asarray(faces, dtype=np.int64)
-    tri = v[f]
-    lo, hi = tri.min(axis=1), tri.max(axis=1)
-    pad = 1e-9 * float(np.ptp(v, axis=0).max())
-    prop = index.Property()
-    prop.dimension = 3
-    tree = index.Index(((i, (*lo[i], *hi[i]), None) for i in range(len(f))), properties=prop)
-    found = []
-    chunk = 20_000
-    for start in range(0, len(f), chunk):
-        stop = min(start + chunk, len(f))
-        ids, counts = tree.intersection_v(lo[start:stop] - pad, hi[start:stop] + pad)
-        i = np.repeat(np.arange(start, stop), np.asarray(counts, dtype=np.int64))
-        j = np.asarray(ids, dtype=np.int64)
-        keep = j > i
-        i, j = i[keep], j[keep]
-        shared = (f[i][:, :, None] == f[j][:, None, :]).sum(axis=(1, 2))
-        keep = shared < 2
-        i, j = i[keep], j[keep]
-        if not len(i):
-            continue
-        A, B = tri[i], tri[j]
-        fa, fb = f[i], f[j]
-        hit = np.zeros(len(i), bool)
-        for X, Y, fx, fy in ((A, B, fa, fb), (B, A, fb, fa)):
-            for k0, k1 in ((0, 1), (1, 2), (2, 0)):
-                # an edge through a vertex of the other face meets that face's plane there
-                # only, so it cannot cross the face's interior: test the other edges
-                free = ~((fx[:, k0, None] == fy) | (fx[:, k1, None] == fy)).any(axis=1)
-                if free.any():
-                    hit[free] |= _segments_cross(X[free, k0], X[free, k1], Y[free, 0], Y[free, 1], Y[free, 2])
-        if hit.any():
-            found.append(np.column_stack([i[hit], j[hit]]))
-            if sum(len(x) for x in found) >= limit:
-                break
-    return np.concatenate(found)[:limit] if found else np.zeros((0, 2), dtype=np.int64)
+    return check(vertices, faces, limit=limit).pairs
 
 
 def folded_edges(vertices: np.ndarray, faces: np.ndarray, cos_limit: float = -0.999) -> int:

@@ -13,7 +13,8 @@ The inertia tensor is ``I = tr(S)·1 − S`` (docs/CONVENTIONS.md §3).
 Two independent routes give the totals: the tetrahedral mass elements (closed form for a
 linear tetrahedron, Tonon 2004) and the closed surface alone (divergence theorem over the
 signed tetrahedra that each face makes with a reference point). The numba kernels of the
-package live in this module only.
+integrals live in this module. :func:`check_physical_inertia` refuses a tensor that no solid
+can have (what a self-intersecting or inside-out surface integrates to).
 """
 
 from __future__ import annotations
@@ -355,3 +356,59 @@ def relative_difference(a: Moments, b: Moments) -> float:
             np.linalg.norm(a.second - b.second) / s_norm,
         )
     )
+
+
+#: violations of the conditions of :func:`check_physical_inertia` up to this fraction of the
+#: trace are taken for round-off (common practice, no source)
+PHYSICAL_REL_TOL = 1e-8
+
+
+def check_physical_inertia(inertia, source: str, rel_tol: float = PHYSICAL_REL_TOL) -> np.ndarray:
+    """Refuse an inertia tensor that no solid can have; return its principal moments.
+
+    inertia : :class:`Moments` (tested about its centre of gravity, and its mass must be
+    positive) or a (3, 3) inertia tensor, kg·m², about any point. ``source`` names what it
+    came from (a file, a body) for the message.
+
+    Every body of non-negative density has principal moments I1 <= I2 <= I3 with I1 >= 0 and
+    I1 + I2 >= I3 (I1 + I2 - I3 = 2 ∫ z² dm along the third principal axis; equal only for a
+    flat body). The tensor about the centre of gravity is the tightest test: about any other
+    point a point-mass tensor, itself physical, is added. A divergence-theorem integral over a
+    surface that crosses itself or is wound inside out counts some volume negatively and can
+    break either condition; breaking one beyond ``rel_tol`` of the trace raises
+    :class:`~bladesolid.errors.InputError`. Passing does not prove the surface clean.
+    Returns ``(3,)`` principal moments, ascending, kg·m².
+
+    >>> from bladesolid.moments import point_mass
+    >>> check_physical_inertia(np.diag([2.0, 3.0, 4.0]), "part").tolist()
+    [2.0, 3.0, 4.0]
+    >>> check_physical_inertia(np.diag([1.0, 1.0, 3.0]), "part")
+    Traceback (most recent call last):
+    ...
+    bladesolid.errors.InputError: part: the inertia tensor is impossible for a solid (principal moments 1, 1, 3 kg·m²: I1 + I2 < I3); the surface is probably self-intersecting or inside-out
+    """
+    from .errors import InputError
+
+    if isinstance(inertia, Moments):
+        if not inertia.mass > 0:
+            raise InputError(source, f"the mass is {inertia.mass:.4g} kg, not positive; the surface is probably "
+                             "self-intersecting or inside-out")
+        tensor = inertia.inertia_cg()
+    else:
+        tensor = np.asarray(inertia, dtype=float)
+        if tensor.shape != (3, 3):
+            raise InputError(source, f"expected a (3, 3) inertia tensor, got shape {tensor.shape}")
+    if not np.isfinite(tensor).all():
+        raise InputError(source, "the inertia tensor has non-finite entries")
+    principal = np.linalg.eigvalsh(0.5 * (tensor + tensor.T))
+    slack = rel_tol * abs(float(np.trace(tensor)))
+    why = []
+    if principal[0] < -slack:
+        why.append("a negative principal moment")
+    if principal[0] + principal[1] - principal[2] < -slack:
+        why.append("I1 + I2 < I3")
+    if why:
+        values = ", ".join(f"{x:.4g}" for x in principal)
+        raise InputError(source, f"the inertia tensor is impossible for a solid (principal moments {values} kg·m²: "
+                         f"{' and '.join(why)}); the surface is probably self-intersecting or inside-out")
+    return principal

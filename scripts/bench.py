@@ -35,6 +35,10 @@ Rows:
    blade, rounds interleaved: unprotected in this process, a forked child (the default on
    Linux), a fresh ``python -m bladesolid.mesh`` interpreter with ``.npy`` files (the fallback),
    each after numba's thread pool is up in the parent. Target: fork within 15 % of unprotected.
+10. geometry checks on the same 240 000-face blade: the self-intersection check
+   (``selfintersect.self_intersections``) beside the closed-surface integral it protects and
+   the R-tree + edge-crossing check it replaced (run once). Target: <= 1.5 s. And welding a
+   facet-by-facet float32 export of the blade (``weld.weld``) beside the bit-exact merge.
 
 numba kernels are compiled (or loaded from the on-disk cache) before any timing. Times are
 medians of repeats; wall clock (``time.perf_counter``).
@@ -487,6 +491,106 @@ def bench_isolation(rounds):
         row("9 isolation", f"TetGen on the demo blade ({len(f):,} faces), {k}ed child", f"{t:.3f} s",
             f"in this process {base:.3f} s", f"{t / base:.2f}x", "<= 1.15x" if k == "fork" else "",
             (t / base <= 1.15) if k == "fork" else None)
+# --------------------------------------------------------------------------- 10. geometry checks
+
+
+def rtree_edge_check(vertices, faces, limit=10):
+    """The self-intersection check field copies used before ``selfintersect`` (baseline only):
+    an R-tree of the face boxes, then Moller-Trumbore of every edge against every candidate
+    face (strict crossings; faces sharing an edge skipped)."""
+    from rtree import index
+
+    v = np.asarray(vertices, dtype=float)
+    f = np.asarray(faces, dtype=np.int64)
+    tri = v[f]
+    lo, hi = tri.min(axis=1), tri.max(axis=1)
+    pad = 1e-9 * float(np.ptp(v, axis=0).max())
+    prop = index.Property()
+    prop.dimension = 3
+    tree = index.Index(((i, (*lo[i], *hi[i]), None) for i in range(len(f))), properties=prop)
+
+    def crosses(p, q, a, b, c, eps=1e-9):
+        e1, e2, d = b - a, c - a, q - p
+        h = np.cross(d, e2)
+        det = np.einsum("ij,ij->i", e1, h)
+        ok = np.abs(det) > eps * np.linalg.norm(e1, axis=1) * np.linalg.norm(e2, axis=1) * np.linalg.norm(d, axis=1)
+        inv = np.divide(1.0, det, out=np.zeros_like(det), where=ok)
+        s = p - a
+        u = np.einsum("ij,ij->i", s, h) * inv
+        qv = np.cross(s, e1)
+        w = np.einsum("ij,ij->i", d, qv) * inv
+        t = np.einsum("ij,ij->i", e2, qv) * inv
+        return ok & (u > eps) & (w > eps) & (u + w < 1 - eps) & (t > eps) & (t < 1 - eps)
+
+    found = 0
+    for start in range(0, len(f), 20_000):
+        stop = min(start + 20_000, len(f))
+        ids, counts = tree.intersection_v(lo[start:stop] - pad, hi[start:stop] + pad)
+        i = np.repeat(np.arange(start, stop), np.asarray(counts, dtype=np.int64))
+        j = np.asarray(ids, dtype=np.int64)
+        keep = j > i
+        i, j = i[keep], j[keep]
+        keep = (f[i][:, :, None] == f[j][:, None, :]).sum(axis=(1, 2)) < 2
+        i, j = i[keep], j[keep]
+        hit = np.zeros(len(i), bool)
+        for X, Y, fx, fy in ((tri[i], tri[j], f[i], f[j]), (tri[j], tri[i], f[j], f[i])):
+            for k0, k1 in ((0, 1), (1, 2), (2, 0)):
+                free = ~((fx[:, k0, None] == fy) | (fx[:, k1, None] == fy)).any(axis=1)
+                if free.any():
+                    hit[free] |= crosses(X[free, k0], X[free, k1], Y[free, 0], Y[free, 1], Y[free, 2])
+        found += int(hit.sum())
+        if found >= limit:
+            break
+    return found
+
+
+def noisy_export(v, f, seed=0):
+    """Facet-by-facet float32 corners with exporter noise (as tests/test_weld.py makes them)."""
+    rng = np.random.default_rng(seed)
+    c = np.asarray(v, np.float32)[f].reshape(-1, 3).copy()
+    zero = c == 0
+    c[zero] = rng.choice(np.array([0.0, -0.0, 1e-17, -1e-17, -5e-17, 2e-33], np.float32), size=int(zero.sum()))
+    up = (rng.random(c.shape) < 0.3) & ~zero
+    c[up] = np.nextafter(c[up], np.float32(np.inf))
+    return c.astype(np.float64), np.arange(len(c), dtype=np.int64).reshape(-1, 3)
+
+
+def bench_geometry(v, f, baseline=True):
+    from bladesolid.io import merge_coincident
+    from bladesolid.moments import surface_volume_moments
+    from bladesolid.selfintersect import self_intersections
+    from bladesolid.weld import weld
+
+    print(f"[10] geometry checks, {len(f):,} faces", flush=True)
+    import trimesh
+
+    box = trimesh.creation.box()
+    self_intersections(box.vertices, box.faces)  # compile / load the cached kernels
+    weld(box.vertices[box.faces].reshape(-1, 3), np.arange(36).reshape(-1, 3))
+    surface_volume_moments(v[:3], f[:1] % 3)
+    c0 = time.process_time()
+    t_check = median_time(lambda: self_intersections(v, f), repeats=5)
+    cpu = (time.process_time() - c0) / 6
+    found = self_intersections(v, f).count
+    t_int = median_time(lambda: surface_volume_moments(v, f), repeats=9)
+    if baseline:
+        t_old = median_time(lambda: rtree_edge_check(v, f), repeats=1, warmup=0)
+        base = f"R-tree + edge crossing check it replaced {t_old:.1f} s (run once)"
+        ratio = f"{t_old / t_check:.0f}x faster than the R-tree check; {t_check / t_int:.0f}x the integral"
+    else:
+        base, ratio = "", f"{t_check / t_int:.0f}x the integral"
+    load = os.getloadavg()[0] if hasattr(os, "getloadavg") else float("nan")
+    row("10 geometry", f"self_intersections, {len(f):,}-face blade ({found} pairs found; CPU {cpu:.2f} s over "
+        f"all threads per run; load average {load:.1f} on {os.cpu_count()} CPUs)", f"{t_check:.2f} s", f"closed-surface integral {t_int * 1e3:.1f} ms" + (f"; {base}" if base else ""), ratio,
+        "<= 1.5 s", t_check <= 1.5)
+    corners, soup = noisy_export(v, f)
+    t_weld = median_time(lambda: weld(corners, soup), repeats=3)
+    t_exact = median_time(lambda: merge_coincident(corners, soup), repeats=3)
+    w = weld(corners, soup)
+    left = len(merge_coincident(corners, soup)[0])
+    row("10 geometry", f"weld of a facet-by-facet float32 export ({len(corners):,} corners -> {len(w.vertices):,} "
+        f"vertices; bit-exact merge leaves {left:,})", f"{t_weld:.2f} s", f"bit-exact merge {t_exact:.2f} s",
+        f"{t_weld / t_exact:.1f}x", "")
 
 
 # --------------------------------------------------------------------------- main
@@ -501,7 +605,7 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="smaller sizes (smoke test, not the figures)")
     ap.add_argument("--markdown", metavar="FILE", help="also write the table here")
-    ap.add_argument("--skip", default="", help="comma-separated sections to skip: kernel,surface,sweep,check,growth,mass,refusals,fieldcopy,batch,isolation")
+    ap.add_argument("--skip", default="", help="comma-separated sections to skip: kernel,surface,sweep,check,growth,mass,refusals,fieldcopy,batch,isolation,geometry")
     args = ap.parse_args(argv)
     skip = set(filter(None, args.skip.split(",")))
     t0 = time.perf_counter()
@@ -533,6 +637,11 @@ def main(argv=None) -> int:
             bench_batch(folder)
         if "isolation" not in skip:
             bench_isolation(3 if args.quick else 7)
+        if "geometry" not in skip:
+            from bladesolid.demo import large_blade_surface
+
+            v, f = large_blade_surface(24_000 if args.quick else 240_000)
+            bench_geometry(v, f, baseline=not args.quick)
     text = markdown()
     print()
     print(text)
