@@ -69,7 +69,7 @@ from .units import LENGTH_UNITS, length_scale
 CAD_FORMATS = {".step": "STEP", ".stp": "STEP", ".iges": "IGES", ".igs": "IGES", ".brep": "BREP"}
 #: Default chord tolerance (largest distance between a triangle and the CAD surface) as a
 #: fraction of the bounding-box diagonal of the whole model.
-DEFAULT_CAD_TOLERANCE = 2e-5
+DEFAULT_CAD_TOLERANCE = 3e-5
 #: Accepted range of ``cad_tolerance``.
 CAD_TOLERANCE_RANGE = (1e-7, 1e-2)
 #: Two solids overlap when their common volume exceeds this fraction of the smaller one.
@@ -304,7 +304,8 @@ def declared_unit(path) -> FileUnit | None:
     """The length unit a STEP or IGES file declares; None for BREP or when none is found.
 
     Also refuses (InputError) a ``.step``/``.stp`` that is not ISO 10303-21 text or lacks its
-    end line (truncated), and an ``.iges``/``.igs`` without a global section or terminate line.
+    end line (truncated), an ``.iges``/``.igs`` without a start section or terminate line, and
+    a ``.brep`` without OpenCASCADE's header.
 
     >>> import tempfile, os
     >>> p = os.path.join(tempfile.mkdtemp(), "u.step")
@@ -320,6 +321,12 @@ def declared_unit(path) -> FileUnit | None:
         return _step_unit(source)
     if fmt == "IGES":
         return _iges_unit(source)
+    if fmt == "BREP":
+        with open(source, "rb") as fh:
+            head = fh.read(256)
+        if b"CASCADE Topology" not in head:
+            raise InputError(source, "is not a BREP file: it does not begin with OpenCASCADE's "
+                                     "'CASCADE Topology' header")
     return None
 
 
@@ -542,12 +549,19 @@ def _kernel_read(request: dict) -> dict:
                 warnings.append(f"the IGES file holds {counts[2]} surfaces and no solid; they "
                                 f"were sewn into {solids} closed solid(s)")
         volumes = [t for _, t in gmsh.model.getEntities(3)]
+        if not any(counts):
+            return {"error": f"cannot be read as {fmt}: the kernel found no shapes in it"}
         if not volumes:
-            what = ", ".join(f"{n} {w}" for n, w in zip(counts[::-1][1:],
-                                                         ("surfaces", "curves", "points")) if n)
-            closing = " (they do not close into a solid)" if fmt == "IGES" and counts[2] else ""
-            return {"error": f"contains no solid, only {what or 'nothing'}{closing}; export the "
-                             "blade as a closed solid body"}
+            what = ", ".join(f"{n} {w if n > 1 else w[:-1]}" for n, w in
+                             zip(counts[::-1][1:], ("surfaces", "curves", "points")) if n)
+            if fmt == "IGES" and counts[2]:
+                why = " (they do not close into a solid)"
+            elif counts[2]:
+                why = " (an open shell, or surfaces never made into a solid)"
+            else:
+                why = ""
+            return {"error": f"contains no solid, only {what}{why}; export the blade as a "
+                             "closed solid body"}
         if len(volumes) > request["max_solids"]:
             return {"error": f"has {len(volumes)} solids, more than the {request['max_solids']} "
                              "accepted"}
