@@ -306,7 +306,6 @@ _IGES_FLAG = {1: 0.0254, 2: 1e-3, 4: 0.3048, 5: 1609.344, 6: 1.0, 7: 1e3, 8: 2.5
 _IGES_NAME = {"IN": 0.0254, "INCH": 0.0254, "MM": 1e-3, "FT": 0.3048, "MI": 1609.344,
               "M": 1.0, "KM": 1e3, "MIL": 2.54e-5, "UM": 1e-6, "CM": 1e-2, "UIN": 2.54e-8}
 
-_STEP_RECORD = re.compile(r"#(\d+)\s*=\s*((?:'(?:[^']|'')*'|[^;'])*);", re.S)
 _STEP_REF = re.compile(r"#(\d+)")
 
 
@@ -355,16 +354,16 @@ def _step_unit(source: str) -> FileUnit | None:
     if "END-ISO-10303-21" not in data[-4096:].upper():
         raise InputError(source, "STEP file is truncated: it does not end with "
                                  "'END-ISO-10303-21;'")
-    text = re.sub(r"/\*.*?\*/", " ", data, flags=re.S)
-    start = text.upper().find("DATA;")
-    if start < 0:
+    section = re.search(r"\bDATA\s*;", data, re.I)
+    if section is None:
         raise InputError(source, "STEP file has no DATA section")
-    records = {int(m.group(1)): m.group(2) for m in _STEP_RECORD.finditer(text, start)}
+    text = data[section.start():]
+    if "/*" in text:
+        text = re.sub(r"/\*.*?\*/", " ", text, flags=re.S)
+    records = _StepRecords(text)
     used: list[int] = []
-    for rid, body in records.items():
-        if "GLOBAL_UNIT_ASSIGNED_CONTEXT" in body.upper():
-            inner = body.upper().split("GLOBAL_UNIT_ASSIGNED_CONTEXT", 1)[1]
-            used += [int(r) for r in _STEP_REF.findall(inner.split(")", 1)[0])]
+    for m in re.finditer(r"GLOBAL_UNIT_ASSIGNED_CONTEXT\s*\(\s*\(([^)]*)\)", text, re.I):
+        used += [int(r) for r in _STEP_REF.findall(m.group(1))]
     found = {}
     for rid in dict.fromkeys(used):
         unit = _step_length(records, rid, 0)
@@ -380,7 +379,19 @@ def _step_unit(source: str) -> FileUnit | None:
     return _named_unit(metres, label)
 
 
-def _step_length(records: dict, rid: int, depth: int):
+class _StepRecords:
+    """The records of a STEP DATA section looked up by id on demand (a file may be large and
+    only the few unit records are wanted)."""
+
+    def __init__(self, text: str):
+        self.text = text
+
+    def get(self, rid: int, default=None):
+        m = re.search(rf"#{rid}\s*=\s*((?:'(?:[^']|'')*'|[^;'])*);", self.text)
+        return m.group(1) if m else default
+
+
+def _step_length(records, rid: int, depth: int):
     """(metres, label) of a STEP length unit record, or None when it is no length unit."""
     body = records.get(rid)
     if body is None or depth > 8:

@@ -456,6 +456,18 @@ def test_nothing_reaches_the_console(files, capfd):
     assert out == "" and err == ""
 
 
+def test_reads_from_several_threads(files):
+    # each read has its own kernel process, so threads do not share the kernel's state
+    from concurrent.futures import ThreadPoolExecutor
+
+    keys = ["blade_mm.step", "blade_in.step", "blade_mm.igs", "blade_m.step"]
+    with ThreadPoolExecutor(4) as pool:
+        models = list(pool.map(lambda k: cad.read_cad(files[k], cad_tolerance=1e-3), keys))
+    assert [m.unit for m in models] == ["mm", "in", "mm", "m"]
+    vols = [m.kernel[0].volume_m3 for m in models]
+    assert max(vols) / min(vols) - 1 < 1e-4
+
+
 def test_timeout_is_an_input_error(files):
     with pytest.raises(InputError, match="did not finish reading within"):
         cad.read_cad(files["blade_mm.step"], timeout=1e-3)
