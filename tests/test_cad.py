@@ -486,7 +486,6 @@ def test_loaded_mesh_for_the_pipeline(files):
 
 
 def test_demo_step_blade_matches_the_stl_blade():
-    from bladesolid.demo import DEMO_DENSITY_KG_M3  # noqa: F401 - the demo module loads
     from bladesolid.io import read_mesh
 
     step = cad.read_cad(os.path.join(ROOT, "meshes", "demo_blade.step"), "mm",
