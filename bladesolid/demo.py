@@ -541,3 +541,93 @@ def write_demo_meshes(outdir) -> tuple[Path, ...]:
     meta_path.write_text(json.dumps(meta, indent=2) + "\n", encoding="utf-8")
     paths.append(meta_path)
     return tuple(paths)
+
+
+# --------------------------------------------------------------------------- CAD (STEP)
+
+
+def blade_bspline_poles(params: BladeParams | None = None):
+    """Bicubic B-spline surface interpolating every section ring (for the STEP demo blade).
+
+    Each ring is closed on itself (its first point repeated) and all rings share one
+    chordwise parameter (the mean normalised chord length around the rings); spanwise the
+    parameter is the chord length along the section reference points. Interpolation is
+    not-a-knot cubic in both directions (``scipy.interpolate.make_interp_spline``), so the
+    surface passes through every ring point; it is C2 except along the seam at the upper
+    trailing-edge point, where the ring closes.
+
+    Returns ``(poles (n_rings, n_chord + 1, 3) mm, knots_u, knots_v)``, the knot vectors in
+    full (clamped: the end knots repeated four times).
+    """
+    from scipy.interpolate import make_interp_spline
+
+    p = params if params is not None else BladeParams()
+    rings, centres, _, _ = section_rings(p)
+    closed = np.concatenate([rings, rings[:, :1]], axis=1)
+    n_r, n_u = closed.shape[:2]
+    seg = np.linalg.norm(np.diff(closed, axis=1), axis=2)
+    u = np.concatenate([np.zeros((n_r, 1)), np.cumsum(seg, axis=1)], axis=1)
+    u = (u / u[:, -1:]).mean(axis=0)
+    spline_u = make_interp_spline(u, closed.transpose(1, 0, 2).reshape(n_u, -1), k=3)
+    poles_u = spline_u.c.reshape(n_u, n_r, 3).transpose(1, 0, 2)
+    v = np.concatenate([[0.0], np.cumsum(np.linalg.norm(np.diff(centres, axis=0), axis=1))])
+    spline_v = make_interp_spline(v / v[-1], poles_u.reshape(n_r, -1), k=3)
+    return spline_v.c.reshape(n_r, n_u, 3), spline_u.t, spline_v.t
+
+
+def write_demo_step(path, params: BladeParams | None = None) -> Path:
+    """Write the demo blade as a STEP solid (millimetres, hub frame) through OpenCASCADE.
+
+    The side of the blade is the B-spline surface of :func:`blade_bspline_poles` (through
+    every ring of the STL blade), closed by planar faces on the root ring and on the last tip
+    ring (the STL closes the tip with a fan into the tip point instead; the cone between is
+    some 1e-6 of the volume). Needs the optional ``gmsh`` package. The header's time stamp is
+    fixed so that the same parameters give the same file.
+    """
+    import os
+    import re
+
+    import gmsh
+
+    poles, knots_u, knots_v = blade_bspline_poles(params)
+    n_u = poles.shape[1]
+
+    def knots(t):
+        k, m = np.unique(np.round(t, 14), return_counts=True)
+        return k.tolist(), m.tolist()
+
+    (ku, mu), (kv, mv) = knots(knots_u), knots(knots_v)
+    out = Path(path)
+    saved = os.dup(1)
+    gmsh.initialize(interruptible=False, readConfigFiles=False)
+    try:
+        gmsh.option.setNumber("General.Terminal", 0)
+        occ = gmsh.model.occ
+        tags = [occ.addPoint(*xyz) for xyz in poles.reshape(-1, 3)]
+        side = occ.addBSplineSurface(tags, n_u, degreeU=3, degreeV=3, knotsU=ku, knotsV=kv,
+                                     multiplicitiesU=mu, multiplicitiesV=mv)
+        occ.remove([(0, t) for t in tags])
+        occ.synchronize()
+        caps = []
+        for _, curve in gmsh.model.getBoundary([(2, side)], oriented=False):
+            box = occ.getBoundingBox(1, abs(curve))
+            if box[4] - box[1] < 1e-6:  # a ring: planar at y = const
+                caps.append(occ.addPlaneSurface([occ.addCurveLoop([abs(curve)])]))
+        occ.addVolume([occ.addSurfaceLoop([side] + caps, sewing=True)])
+        occ.synchronize()
+        tmp = out.with_name(out.name + ".tmp.step")
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, 1)  # the STEP writer reports on the C stdout
+        try:
+            gmsh.write(str(tmp))
+        finally:
+            os.dup2(saved, 1)
+            os.close(devnull)
+    finally:
+        gmsh.finalize()
+        os.close(saved)
+    text = tmp.read_text(encoding="latin-1")
+    text = re.sub(r"(FILE_NAME\('[^']*',)'[^']*'", r"\1'2000-01-01T00:00:00'", text, count=1)
+    out.write_text(text, encoding="latin-1")
+    tmp.unlink()
+    return out
