@@ -33,6 +33,10 @@ from .solvers import factorize, matrix_bytes
 #: Default tolerance on the change of untwist between passes, degrees.
 UNTWIST_TOLERANCE_DEG = 1e-3
 
+#: Besides the untwist, the largest displacement must change by less than this fraction
+#: between passes (a blade without twist to speak of still converges on its deflection).
+DISPLACEMENT_TOLERANCE = 1e-3
+
 #: Default largest number of stiffened passes.
 MAX_PASSES = 8
 
@@ -175,7 +179,8 @@ def solve_static(model: ElasticModel, rpm: float, *, stiffening: bool = True,
     """The steady elastic state at ``rpm`` (the blade angle is the model's).
 
     stiffening : iterate with the geometric stiffness and spin softening (False: linear only)
-    tolerance_deg : stop when the untwist changes by less than this between passes
+    tolerance_deg : stop when the untwist changes by less than this between passes (and the
+      largest displacement by less than :data:`DISPLACEMENT_TOLERANCE` of itself)
     max_passes : largest number of stiffened passes (converged is False if it is reached)
     solver : ``direct`` or ``amg-cg`` (:mod:`.solvers`)
     keep_factor : also return the last operator and its factor ``(result, (A_ff, factor, σ))``
@@ -224,9 +229,9 @@ def solve_static(model: ElasticModel, rpm: float, *, stiffening: bool = True,
             passes.append(StaticPass(k, untwist(model, U), float(_reaction(model, A, u, f) @ model.frame.e),
                                      float(np.abs(U).max())))
             a, b = passes[-1].untwist_deg, passes[-2].untwist_deg
-            du = abs(a - b) if math.isfinite(a) and math.isfinite(b) else abs(
-                passes[-1].max_displacement_m / max(passes[-2].max_displacement_m, 1e-300) - 1.0) * 1e3
-            if du < tolerance_deg:
+            twist_ok = not (math.isfinite(a) and math.isfinite(b)) or abs(a - b) < tolerance_deg
+            grow = abs(passes[-1].max_displacement_m / max(passes[-2].max_displacement_m, 1e-300) - 1.0)
+            if twist_ok and grow < DISPLACEMENT_TOLERANCE:
                 converged = True
                 break
     stress = sig.mean(axis=1)
