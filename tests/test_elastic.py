@@ -233,6 +233,7 @@ def test_hermite_beam_reproduces_southwell_coefficient():
     assert Ks == pytest.approx(1.19, abs=0.02)
 
 
+@pytest.mark.slow
 def test_flatwise_frequency_rises_with_speed_as_the_rotating_beam(cantilever):
     """Stiffened first flatwise frequency at speed against the Hermite rotating-beam model of
     the same bar (hub offset r0): the rise ω² − ω0² compared, which does not depend on EI
@@ -242,11 +243,11 @@ def test_flatwise_frequency_rises_with_speed_as_the_rotating_beam(cantilever):
     st = MATERIALS["steel-4340"]
     rhoA = st.density_kg_m3 * B_BEAM * H_BEAM
     EI = st.modulus_Pa * B_BEAM * H_BEAM**3 / 12
+    fe0 = modes_at(cantilever, 0.0, 1).frequencies_Hz[0]
+    fb0 = hermite_rotating_beam(EI, rhoA, R0_BEAM, R0_BEAM + L_BEAM, 0.0)[0]
     for rpm in (2000.0, 4000.0):
         om = rpm * math.pi / 30
-        fe0 = modes_at(cantilever, 0.0, 1).frequencies_Hz[0]
         fe = modes_at(cantilever, rpm, 1).frequencies_Hz[0]
-        fb0 = hermite_rotating_beam(EI, rhoA, R0_BEAM, R0_BEAM + L_BEAM, 0.0)[0]
         fb = hermite_rotating_beam(EI, rhoA, R0_BEAM, R0_BEAM + L_BEAM, om)[0]
         rise_fe, rise_b = fe**2 - fe0**2, fb**2 - fb0**2
         assert rise_fe == pytest.approx(rise_b, rel=0.03)
@@ -290,6 +291,7 @@ def plate_untwist_ode(E, nu, rho, c, t, r0, R, beta_deg, omega, r_eval, n=1000, 
     return math.degrees(float(np.interp(r_eval, r, theta)))
 
 
+@pytest.mark.slow
 def test_flat_plate_untwist_against_the_torsion_equation_with_tension_stiffening(folder):
     """A thin flat plate at 30°, where the tension term T k² is of the order of G J. Compared
     with the torsion equation (plate_untwist_ode): the twist between two stations away from
@@ -321,3 +323,40 @@ def test_flat_plate_untwist_against_the_torsion_equation_with_tension_stiffening
     assert st.untwist_deg / lin == pytest.approx(ratio_ode, abs=0.03)
     # mean axial stress over a section against P/A of everything outboard (equilibrium)
     assert np.allclose(sp.mean_axial_stress_Pa, sp.p_over_a_Pa, rtol=0.01)
+
+
+# --- outputs ------------------------------------------------------------------------------------
+
+
+def test_vtu_round_trip_and_pictures(folder, bar):
+    """The VTU read back by meshio (a general-purpose reader): quadratic tetrahedra, the
+    displacement at every node, six stress components and von Mises per element; the
+    matplotlib pictures are written."""
+    import meshio
+
+    from bladesolid.elastic import spanwise_elastic, solve_static, write_vtu
+    from bladesolid.elastic.modes import ModeSet, crossings
+    from bladesolid.elastic.plots import plot_campbell, plot_spanwise
+
+    blade, model = bar
+    st = solve_static(model, 3000.0)
+    path = write_vtu(model, st, os.path.join(folder, "bar.vtu"))
+    with pytest.raises(InputError):
+        write_vtu(model, st, path)  # exists: needs force
+    m = meshio.read(path)
+    assert m.cells[0].type == "tetra10" and len(m.cells[0].data) == len(model.mesh)
+    assert np.allclose(m.point_data["displacement_m"], st.displacement_m)
+    assert np.allclose(m.cell_data["stress_Pa"][0], st.stress_Pa)
+    assert np.allclose(m.cell_data["von_mises_Pa"][0], st.von_mises_Pa)
+    # away from the clamp the bar is in uniaxial tension: von Mises = the axial stress (definition)
+    away = model.mesh.nodes[model.mesh.elements[:, :4]].mean(axis=1)[:, 1] > 0.2
+    assert np.allclose(st.von_mises_Pa[away], st.stress_Pa[away, 1], rtol=0.01, atol=0.005 * st.von_mises_Pa.max())
+    sp = spanwise_elastic(model, st, 5)
+    assert os.path.getsize(plot_spanwise(sp, os.path.join(folder, "span.png"))) > 10_000
+    sweep = [ModeSet(r, np.array([40.0 + r / 100.0, 150.0]), ("flatwise", "edgewise"), np.zeros((2, 5)), None, 0.0, 0)
+             for r in (0.0, 2000.0, 4000.0)]
+    cr = crossings(sweep, blades=3)
+    assert any(c.blade_passing and c.order == 3 for c in cr)
+    for c in cr:  # each crossing lies on its excitation line n·rpm/60
+        assert c.frequency_Hz == pytest.approx(c.order * c.rpm / 60.0)
+    assert os.path.getsize(plot_campbell(sweep, os.path.join(folder, "campbell.png"), blades=3)) > 10_000

@@ -115,7 +115,7 @@ def modes_at(model: ElasticModel, rpm: float, n_modes: int = 8, *, stiffening: b
                                          **static_kw)
     free = model.free
     M_ff = assemble.expand(model.mass_scalar)[free][:, free].tocsr()
-    if solver != "direct":  # shift-invert wants exact solves
+    if fac is None or solver != "direct":  # shift-invert wants the exact operator's factor
         fac = factorize(A_ff, "direct")
     n = A_ff.shape[0]
     k = int(min(n_modes, n - 2))
