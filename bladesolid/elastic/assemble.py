@@ -90,7 +90,7 @@ def _kernels():
 def lame(E, nu):
     """Lamé constants (λ, μ), Pa, of an isotropic solid from Young's modulus and Poisson's ratio.
 
-    >>> [round(x / 1e9, 4) for x in lame(200e9, 0.25)]
+    >>> [round(float(x) / 1e9, 4) for x in lame(200e9, 0.25)]
     [80.0, 80.0]
     """
     E, nu = np.asarray(E, float), np.asarray(nu, float)

@@ -157,8 +157,8 @@ def crossings(sweep: list[ModeSet], blades: int | None = None, orders=range(1, 9
 
     >>> s = [ModeSet(0.0, np.array([10.0]), ("flatwise",), np.zeros((1, 5)), None, 0.0, 0),
     ...      ModeSet(600.0, np.array([14.0]), ("flatwise",), np.zeros((1, 5)), None, 0.0, 0)]
-    >>> [(round(c.rpm, 3), c.order) for c in crossings(s, orders=[1, 2])]
-    [(500.0, 2)]
+    >>> [(round(c.rpm, 3), c.order) for c in crossings(s, orders=[1, 2])]   # 10 + r/150 = 2 r/60
+    [(375.0, 2)]
     """
     orders = sorted(set(int(n) for n in orders) | ({int(blades)} if blades else set()))
     pts = sorted(sweep, key=lambda s: s.rpm)

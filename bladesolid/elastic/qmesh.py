@@ -26,6 +26,11 @@ from ..errors import InputError
 #: TetGen's refinement is guaranteed to end (TetGen manual, from memory).
 RADIUS_EDGE = 1.5
 
+#: Time allowed to the refinement with boundary Steiner points before falling back to keeping
+#: the surface (on thin trailing edges TetGen may refine without end), and to the fallback, s.
+STEINER_TIMEOUT_S = 60.0
+KEPT_SURFACE_TIMEOUT_S = 900.0
+
 #: Default number of (linear) elements when neither an element size nor a count is given.
 DEFAULT_ELEMENTS = 20_000
 
@@ -170,7 +175,7 @@ def quality_mesh(surfaces, *, element_size_m: float | None = None, target_elemen
             args = (v, f, max_volume)
             kw = {"radius_edge": radius_edge, "keep_surface": keep}
             if isolate:
-                status, out = run_isolated(*args, **kw)
+                status, out = run_isolated(*args, **kw, timeout_s=KEPT_SURFACE_TIMEOUT_S if keep else STEINER_TIMEOUT_S)
             else:
                 try:
                     status, out = "ok", quality_tetrahedra(*args, **kw)
@@ -217,8 +222,9 @@ def quadratic(nodes: np.ndarray, tets: np.ndarray, body: np.ndarray) -> Quadrati
     """Add a node at the midpoint of every edge (straight edges: the solid is polyhedral).
 
     >>> q = quadratic(np.eye(4)[:, :3], np.array([[0, 1, 2, 3]]), np.zeros(1, np.int32))
-    >>> q.nodes.shape, q.elements[0].tolist()
-    ((10, 3), [0, 1, 2, 3, 4, 5, 6, 7, 8, 9])
+    >>> mid = 0.5 * (q.nodes[TET10_EDGES[:, 0]] + q.nodes[TET10_EDGES[:, 1]])
+    >>> q.nodes.shape, bool(np.allclose(q.nodes[q.elements[0, 4:]], mid))
+    ((10, 3), True)
     """
     tets = np.asarray(tets, dtype=np.int64)
     n = len(nodes)
