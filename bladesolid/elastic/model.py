@@ -145,6 +145,7 @@ class ElasticModel:
     pattern: object
     radial_pull_per_omega2: float
     timings_s: dict = field(default_factory=dict)
+    cache: dict = field(default_factory=dict, repr=False)  # solver state reused between solves
 
     @property
     def n_dofs(self) -> int:

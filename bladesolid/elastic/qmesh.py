@@ -28,7 +28,7 @@ RADIUS_EDGE = 1.5
 
 #: Time allowed to the refinement with boundary Steiner points before falling back to keeping
 #: the surface (on thin trailing edges TetGen may refine without end), and to the fallback, s.
-STEINER_TIMEOUT_S = 60.0
+STEINER_TIMEOUT_S = 30.0
 KEPT_SURFACE_TIMEOUT_S = 900.0
 
 #: Default number of (linear) elements when neither an element size nor a count is given.

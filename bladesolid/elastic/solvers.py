@@ -1,8 +1,10 @@
 """Sparse solves of the elastic blade: direct (SuperLU) or AMG-preconditioned conjugate gradients.
 
-``direct``: scipy's SuperLU (``splu``) with the minimum-degree ordering of AᵀA + A (the
-matrices are symmetric) and symmetric mode; the factor is kept and reused (several right-hand
-sides, shift-invert Lanczos). ``amg-cg``: pyamg smoothed aggregation with the six rigid-body
+``direct``: a sparse Cholesky factor, kept and reused (several right-hand sides, shift-invert
+Lanczos): CHOLMOD (through scikit-sparse, the optional ``fast`` extra; SuiteSparse, LGPL/GPL)
+when it is installed, else scipy's SuperLU (``splu``) with the minimum-degree ordering of
+AᵀA + A and symmetric mode. SuperLU's fill and time grow much faster with the mesh: it suits
+meshes up to some 10⁴ quadratic elements (``scripts/bench.py`` measures both). ``amg-cg``: pyamg smoothed aggregation with the six rigid-body
 modes as near-null space, as a preconditioner of scipy's CG to a relative residual of
 :data:`CG_RTOL`. ``scripts/bench.py`` measures one against the other on a blade.
 """
@@ -48,12 +50,37 @@ def rigid_body_modes(points: np.ndarray) -> np.ndarray:
     return B.reshape(3 * n, 6)
 
 
-def factorize(A, solver: str = "direct", points: np.ndarray | None = None) -> Factor:
+def factorize(A, solver: str = "direct", points: np.ndarray | None = None, cache: dict | None = None) -> Factor:
     """Prepare solves with the symmetric positive definite A (CSR).
 
+    cache : a dict kept with the model; CHOLMOD's ordering and symbolic analysis are kept in
+      it and reused for every later matrix of the same size (the operators of one model all
+      have the pattern of its node graph), so later factorizations are numeric only.
     points : (p, 3) positions of the free nodes (for the AMG near-null space).
     """
     if solver == "direct":
+        try:
+            from sksparse.cholmod import cholesky
+        except ImportError:
+            cholesky = None
+        if cholesky is not None:
+            from sksparse.cholmod import analyze
+
+            Ac = A.tocsc()
+            key = ("cholmod", A.shape[0])
+            if cache is not None and key in cache:
+                f = cache[key]
+                f.cholesky_inplace(Ac)
+            else:
+                f = analyze(Ac)
+                f.cholesky_inplace(Ac)
+                if cache is not None:
+                    cache[key] = f
+            try:
+                nnz_l = int(f.L().nnz)
+            except Exception:  # pragma: no cover - older wrappers
+                nnz_l = 0
+            return Factor(f, "direct (CHOLMOD Cholesky, scikit-sparse)", int(matrix_bytes(A) + 12 * nnz_l))
         from scipy.sparse.linalg import splu
 
         lu = splu(A.tocsc(), permc_spec="MMD_AT_PLUS_A", diag_pivot_thresh=0.0,

@@ -28,7 +28,7 @@ from ..frame import blade_angle_from_chord
 from ..units import rpm_to_rad_s
 from . import assemble
 from .model import ElasticModel, interpolate
-from .solvers import factorize, matrix_bytes
+from .solvers import Factor, factorize, matrix_bytes
 
 #: Default tolerance on the change of untwist between passes, degrees.
 UNTWIST_TOLERANCE_DEG = 1e-3
@@ -161,7 +161,7 @@ def untwist(model: ElasticModel, displacement: np.ndarray, points: np.ndarray | 
 
 
 def _state(model, K_with, f, free, solver, points):
-    fac = factorize(K_with[free][:, free].tocsr(), solver, points)
+    fac = factorize(K_with[free][:, free].tocsr(), solver, points, model.cache)
     u = np.zeros(3 * len(model.mesh.nodes))
     u[free] = fac.solve(f[free])
     return u, fac
@@ -202,6 +202,8 @@ def solve_static(model: ElasticModel, rpm: float, *, stiffening: bool = True,
     max_passes : largest number of stiffened passes (converged is False if it is reached)
     solver : ``direct`` or ``amg-cg`` (:mod:`.solvers`)
     keep_factor : also return the last operator and its factor ``(result, (A_ff, factor, σ))``
+      (factor None when that operator was not factorized; a factor is valid until the next
+      solve with the same model, which may reuse its storage)
     """
     if not (math.isfinite(rpm) and rpm >= 0):
         raise InputError("rpm", f"must be a speed of zero or more rpm, got {rpm!r}")
@@ -217,7 +219,13 @@ def solve_static(model: ElasticModel, rpm: float, *, stiffening: bool = True,
     K = model.stiffness
     timings = {"solve": 0.0, "stress": 0.0, "geometric": 0.0}
     t0 = time.perf_counter()
-    u, fac = _state(model, K, f, free, solver, pts)
+    key = ("linear", solver)
+    if key not in model.cache:  # the linear state is proportional to Ω²: solved once per model
+        u1, fac = _state(model, K, f1, free, solver, pts)
+        model.cache[key] = (u1, fac.name, fac.memory_bytes)
+    u1, name, nbytes = model.cache[key]
+    fac = Factor(None, name, nbytes)  # the factor itself may since hold another operator
+    u = omega**2 * u1
     timings["solve"] += time.perf_counter() - t0
     A = K
     mem = fac.memory_bytes
@@ -228,7 +236,7 @@ def solve_static(model: ElasticModel, rpm: float, *, stiffening: bool = True,
     passes = [StaticPass(0, untwist(model, U), float(_reaction(model, A, u, f) @ model.frame.e),
                          float(np.abs(U).max()))]
     converged = not stiffening or omega == 0.0
-    last = (K[free][:, free], fac, sig)
+    last = (K[free][:, free], None, sig)
     first, cg_total = fac, 0
     if not converged:
         for k in range(1, int(max_passes) + 1):
