@@ -354,79 +354,107 @@ def bench_mass_command(folder, repeats):
 # --------------------------------------------------------------------------- 6. elastic
 
 
-def bench_elastic(n_elements, refine_sizes):
+def bench_elastic(folder, n_target, n_small, refine_sizes):
     import resource
 
-    from bladesolid import api
-    from bladesolid.elastic import campbell, elastic_model, solve_static
-    from bladesolid.elastic.solvers import factorize
+    import trimesh
 
-    print(f"[6] elastic blade, ~{n_elements:,} quadratic elements", flush=True)
-    blade = api.load_blade(DEMO, "mm", [("material", "al-2025-t6")], elements=False)
+    from bladesolid import api, fieldres
+    from bladesolid.elastic import assemble, campbell, elastic_model, solve_static
+    from bladesolid.elastic.solvers import factorize, rigid_body_modes
+    from bladesolid.io import write_surface
+
+    print(f"[6] elastic blade: {n_target:,}-element target, solver comparison at {n_small:,}", flush=True)
+    m = trimesh.load(DEMO, force="mesh")
+    v, f = fieldres.field_surface(np.asarray(m.vertices), np.asarray(m.faces), 5000)
+    stl = Path(folder) / "demo_5k_elastic.stl"
+    write_surface(stl, v, f)
+    blade = api.load_blade(stl, "mm", [("material", "al-2025-t6")], elements=False)
     t0 = time.perf_counter()
-    model = elastic_model(blade, target_elements=n_elements, blade_angle_deg=25.0)
+    model = elastic_model(blade, target_elements=n_target, blade_angle_deg=25.0)
     t_model = time.perf_counter() - t0
-    mesh_note = "boundary Steiner points" if model.quality.boundary_steiner else "surface kept (fallback)"
-    row("6 elastic", f"quality mesh + P2 + assembly, demo blade ({len(model.mesh):,} elements, {model.n_dofs:,} DOFs, "
-        f"{mesh_note})", f"{t_model:.1f} s", f"mesh {model.timings_s['quality_mesh']:.1f} s, assembly "
-        f"{model.timings_s['assemble']:.2f} s", "", "")
-    try:
-        import skfem
-        from skfem.models.elasticity import lame_parameters, linear_elasticity
-
-        from bladesolid.elastic import assemble
-
-        qm = model.quality
-        mat = blade.materials[0].label
-        from bladesolid.materials import MATERIALS
-
-        E, nu = MATERIALS[mat].modulus_Pa, MATERIALS[mat].poisson
-        k = len(model.mesh)
-        t_ours = median_time(lambda: assemble.stiffness_matrix(
-            model.mesh.nodes, model.mesh.elements, assemble.node_pattern(model.mesh.elements, len(model.mesh.nodes)),
-            np.full(k, E), np.full(k, nu)), repeats=1)
-        basis = skfem.Basis(skfem.MeshTet(qm.nodes.T, qm.tets.T), skfem.ElementVector(skfem.ElementTetP2()), intorder=2)
-        t_sk = median_time(lambda: skfem.asm(linear_elasticity(*lame_parameters(E, nu)), basis), repeats=1, warmup=0)
-        row("6 elastic", f"quadratic stiffness assembly, {k:,} elements (pattern included)", f"{t_ours:.2f} s",
-            f"scikit-fem ElementTetP2 {t_sk:.2f} s", f"{t_sk / t_ours:.1f}x faster", "faster than scikit-fem",
-            t_ours < t_sk)
-    except ImportError:
-        pass
+    how = "boundary Steiner points" if model.quality.boundary_steiner else "surface kept after the Steiner refinement failed"
+    row("6 elastic", f"quality mesh + 10-node elements + assembly, demo blade (5 k-face surface; {len(model.mesh):,} "
+        f"elements, {model.n_dofs:,} DOFs; {how})", f"{t_model:.1f} s", f"TetGen {model.timings_s['quality_mesh']:.1f} s, "
+        f"assembly of K and M {model.timings_s['assemble']:.2f} s", "", "")
     t0 = time.perf_counter()
     st = solve_static(model, 2500.0)
     t_solve = time.perf_counter() - t0
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1e3
-    row("6 elastic", f"stress solve at 2500 rpm with stiffening ({st.iterations} passes, untwist {st.untwist_deg:+.4f} deg, "
-        f"max von Mises {st.max_von_mises_Pa / 1e6:.1f} MPa; reaction/pull {st.root_reaction_N / st.radial_pull_N:.5f})",
+    row("6 elastic", f"stress solve, 2500 rpm, stiffened ({st.iterations} passes, untwist {st.untwist_deg:+.4f} deg, max von "
+        f"Mises {st.max_von_mises_Pa / 1e6:.1f} MPa, reaction / exact pull {st.root_reaction_N / st.radial_pull_N:.5f})",
         f"{t_solve:.1f} s, {st.memory_MB:.0f} MB (peak RSS {peak:.0f} MB)", st.solver, "", "< 60 s", t_solve < 60)
-    small = elastic_model(blade, target_elements=max(n_elements // 5, 2000), blade_angle_deg=25.0)
-    A = small.stiffness[small.free][:, small.free].tocsr()
-    b = (np.random.default_rng(0).random(A.shape[0]) - 0.5)
-    t_d = median_time(lambda: factorize(A, "direct").solve(b), repeats=1, warmup=0)
-    fac = [None]
-
-    def amg():
-        fac[0] = factorize(A, "amg-cg", small.mesh.nodes[~small.clamp])
-        try:
-            fac[0].solve(b)
-        except RuntimeError:
-            pass
-
-    t_a = median_time(amg, repeats=1, warmup=0)
-    row("6 elastic", f"one linear solve, {len(small.mesh):,} elements ({A.shape[0]:,} DOFs)", f"direct {t_d:.2f} s",
-        f"pyamg SA + CG {t_a:.2f} s ({fac[0].iterations} iterations)", f"{t_a / t_d:.1f}x", "the faster is the default")
     t0 = time.perf_counter()
     sweep = campbell(model, [0.0, 1000.0, 2000.0, 2500.0, 3000.0], n_modes=8)
     t_modes = time.perf_counter() - t0
-    f0 = ", ".join(f"{f:.1f}" for f in sweep[0].frequencies_Hz[:4])
-    row("6 elastic", f"8 modes at 5 speeds (first four at rest: {f0} Hz)", f"{t_modes:.0f} s", "", "", "a few minutes",
-        t_modes < 300)
+    f0 = ", ".join(f"{x:.1f}" for x in sweep[0].frequencies_Hz[:4])
+    row("6 elastic", f"8 modes at 5 speeds (at rest: {f0} Hz ...; {', '.join(sweep[0].labels[:4])})",
+        f"{t_modes:.0f} s", "", "", "a few minutes", t_modes < 300)
+
+    small = elastic_model(blade, target_elements=n_small, blade_angle_deg=25.0)
+    k = len(small.mesh)
+    from bladesolid.materials import MATERIALS
+
+    E, nu = MATERIALS["al-2025-t6"].modulus_Pa, MATERIALS["al-2025-t6"].poisson
+    t_ours = median_time(lambda: assemble.stiffness_matrix(
+        small.mesh.nodes, small.mesh.elements, assemble.node_pattern(small.mesh.elements, len(small.mesh.nodes)),
+        np.full(k, E), np.full(k, nu)), repeats=3)
+    try:
+        import skfem
+        from skfem.models.elasticity import lame_parameters, linear_elasticity
+
+        qm = small.quality
+        basis = skfem.Basis(skfem.MeshTet(qm.nodes.T, qm.tets.T), skfem.ElementVector(skfem.ElementTetP2()), intorder=2)
+        t_sk = median_time(lambda: skfem.asm(linear_elasticity(*lame_parameters(E, nu)), basis), repeats=1, warmup=0)
+        row("6 elastic", f"quadratic stiffness assembly, {k:,} elements (node graph included)", f"{t_ours:.2f} s",
+            f"scikit-fem ElementTetP2 {t_sk:.2f} s", f"{t_sk / t_ours:.1f}x faster", "faster than scikit-fem",
+            t_ours < t_sk)
+    except ImportError:
+        pass
+    A = small.stiffness[small.free][:, small.free].tocsr()
+    b = np.random.default_rng(0).random(A.shape[0]) - 0.5
+    pts = small.mesh.nodes[~small.clamp]
+    res = {}
+    try:
+        import sksparse.cholmod  # noqa: F401
+
+        t = median_time(lambda: factorize(A, "direct").solve(b), repeats=1, warmup=0)
+        res["CHOLMOD"] = f"{t:.2f} s"
+    except ImportError:
+        res["CHOLMOD"] = "not installed"
+    import builtins
+
+    real_import = builtins.__import__
+
+    def no_cholmod(name, *a, **kw):
+        if name.startswith("sksparse"):
+            raise ImportError(name)
+        return real_import(name, *a, **kw)
+
+    builtins.__import__ = no_cholmod
+    try:
+        t_lu = median_time(lambda: factorize(A, "direct").solve(b), repeats=1, warmup=0)
+    finally:
+        builtins.__import__ = real_import
+    import pyamg
+    from scipy.sparse.linalg import cg
+
+    t0 = time.perf_counter()
+    ml = pyamg.smoothed_aggregation_solver(A, B=rigid_body_modes(pts), symmetry="symmetric", max_coarse=500)
+    its = [0]
+    x, info = cg(A, b, rtol=1e-10, atol=0.0, M=ml.aspreconditioner(), maxiter=300,
+                 callback=lambda _: its.__setitem__(0, its[0] + 1))
+    t_amg = time.perf_counter() - t0
+    rel = float(np.linalg.norm(A @ x - b) / np.linalg.norm(b))
+    row("6 elastic", f"one linear solve, {k:,} elements ({A.shape[0]:,} DOFs)", f"SuperLU {t_lu:.2f} s",
+        f"CHOLMOD {res['CHOLMOD']}; pyamg SA + CG {t_amg:.2f} s ({its[0]} iterations, residual {rel:.1e})", "",
+        "direct is the default")
     for h in refine_sizes:
-        m = elastic_model(blade, element_size_m=h, blade_angle_deg=25.0)
-        s = solve_static(m, 2500.0)
-        row("6 elastic", f"refinement: element size {h * 1e3:g} mm ({len(m.mesh):,} elements)",
-            f"untwist {s.untwist_deg:+.5f} deg", f"max von Mises {s.max_von_mises_Pa / 1e6:.2f} MPa",
-            f"tip deflection {np.linalg.norm(s.tip_deflection_m) * 1e3:.4f} mm", "converging")
+        mh = elastic_model(blade, element_size_m=h, blade_angle_deg=25.0)
+        sh = solve_static(mh, 2500.0)
+        row("6 elastic", f"refinement: element size {h * 1e3:g} mm ({len(mh.mesh):,} elements, {mh.n_dofs:,} DOFs)",
+            f"untwist {sh.untwist_deg:+.5f} deg", f"max von Mises {sh.max_von_mises_Pa / 1e6:.2f} MPa",
+            f"tip deflection {np.linalg.norm(sh.tip_deflection_m) * 1e3:.4f} mm", "converging")
 
 
 # --------------------------------------------------------------------------- main
@@ -466,7 +494,8 @@ def main(argv=None) -> int:
         if "mass" not in skip:
             bench_mass_command(folder, 2 if args.quick else 5)
         if "elastic" not in skip:
-            bench_elastic(10_000 if args.quick else 50_000, [0.03, 0.02] if args.quick else [0.03, 0.02, 0.014])
+            bench_elastic(folder, 4_000 if args.quick else 17_000, 2_000 if args.quick else 4_000,
+                          [0.03, 0.02] if args.quick else [0.04, 0.03, 0.02, 0.015])
     text = markdown()
     print()
     print(text)

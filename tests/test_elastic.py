@@ -142,6 +142,16 @@ def test_clamp_radius_and_elastic_constants_are_checked(folder, bar):
         elastic_model(dens, element_size_m=0.02)
     with pytest.raises(InputError, match="poisson"):
         elastic_model(dens, element_size_m=0.02, modulus="71 GPa", poisson=0.7)
+    a = trimesh.creation.box([0.02, 0.2, 0.02])
+    a.apply_translation([0.0, 0.2, 0.0])
+    b = a.copy()
+    b.apply_translation([0.05, 0.0, 0.0])
+    p = os.path.join(folder, "two.stl")
+    trimesh.util.concatenate([a, b]).export(p)
+    two = api.load_blade(p, "m", [AL], elements=False)
+    assert len(two.surfaces) == 2
+    with pytest.raises(InputError, match="single body"):
+        elastic_model(two, element_size_m=0.02)
 
 
 # --- cantilever frequencies ---------------------------------------------------------------------

@@ -186,6 +186,9 @@ def elastic_model(blade, *, blade_angle_deg: float | None = None, pitch_change_d
 
     say = progress or (lambda stage: None)
     t = {}
+    if len(blade.surfaces) != 1:
+        raise InputError(blade.source, f"the elastic model takes a single body; this blade has {len(blade.surfaces)} "
+                         "(bodies bonded to each other, such as a sheath, would need one conforming mesh)")
     beta = resolve_blade_angle(blade, blade_angle_deg, pitch_change_deg)
     delta = beta - blade.modelled_deg
     constants = elastic_constants(blade, modulus, poisson)  # refuse bad constants before meshing

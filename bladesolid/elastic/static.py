@@ -73,6 +73,8 @@ class StaticResult:
       their exact moments, for comparison (the linear pass matches it to round-off; the
       stiffened passes add the centrifugal force of the displacement, Ω² ∫ ρ u⊥·e dV)
     passes : every solve (pass 0 linear); converged; tolerance_deg
+    elements, nodes, dofs (free), element_order (2), solver, memory_MB (matrices and factor),
+    element_size_m (asked for), mesh_notes (how the quality mesh was made, when not as asked)
     """
 
     rpm: float
@@ -101,6 +103,8 @@ class StaticResult:
     element_order: int
     solver: str
     memory_MB: float
+    element_size_m: float = float("nan")
+    mesh_notes: tuple[str, ...] = ()
     timings_s: dict = field(default_factory=dict)
 
     @property
@@ -120,6 +124,7 @@ class StaticResult:
             "root_reaction_N": self.root_reaction_N,
             "radial_pull_N": self.radial_pull_N,
             "elements": self.elements,
+            "element_size_m": _f(self.element_size_m),
             "nodes": self.nodes,
             "dofs": self.dofs,
             "element_order": self.element_order,
@@ -131,6 +136,7 @@ class StaticResult:
             "passes_untwist_deg": [_f(p.untwist_deg) for p in self.passes],
             "memory_MB": self.memory_MB,
             "stress_location": "element centroid",
+            "mesh_notes": list(self.mesh_notes),
         }
 
 
@@ -287,5 +293,6 @@ def solve_static(model: ElasticModel, rpm: float, *, stiffening: bool = True,
         stiffening=bool(stiffening), passes=tuple(passes), converged=bool(converged),
         tolerance_deg=float(tolerance_deg), elements=len(mesh), nodes=len(mesh.nodes), dofs=model.n_dofs,
         element_order=2, solver=first.name + (f"; passes after the first by CG on its factor ({cg_total} iterations)"
-                                              if cg_total else ""), memory_MB=mem / 1e6, timings_s=timings)
+                                              if cg_total else ""), memory_MB=mem / 1e6,
+        element_size_m=model.quality.element_size_m, mesh_notes=model.quality.notes, timings_s=timings)
     return (res, last) if keep_factor else res
