@@ -370,3 +370,25 @@ def test_vtu_round_trip_and_pictures(folder, bar):
     for c in cr:  # each crossing lies on its excitation line n·rpm/60
         assert c.frequency_Hz == pytest.approx(c.order * c.rpm / 60.0)
     assert os.path.getsize(plot_campbell(sweep, os.path.join(folder, "campbell.png"), blades=3)) > 10_000
+
+
+@pytest.mark.slow
+def test_modes_by_rayleigh_ritz_equal_shift_invert_on_the_final_operator(folder):
+    """When the later static passes are solved by CG, the modes come from a Rayleigh–Ritz
+    projection; here against shift-invert Lanczos on a fresh factor of the same final operator
+    (an independent route inside the test)."""
+    from scipy.sparse.linalg import LinearOperator, eigsh
+
+    from bladesolid.elastic import assemble, elastic_model, modes_at, solve_static
+    from bladesolid.elastic.solvers import factorize
+
+    blade = box_blade(folder, "ritz", [0.05, 0.3, 0.003], 0.1, pitch_deg=30.0)
+    model = elastic_model(blade, element_size_m=0.01)
+    ms = modes_at(model, 6000.0, 6)
+    st, last = solve_static(model, 6000.0, keep_factor=True)
+    assert st.iterations >= 2 and last["factor"] is None  # the Rayleigh–Ritz route was taken
+    A = last["A"]
+    M = assemble.expand(model.mass_scalar)[model.free][:, model.free].tocsr()
+    fac = factorize(A, "direct")
+    vals = eigsh(A, k=6, M=M, sigma=0.0, OPinv=LinearOperator(A.shape, matvec=fac.solve))[0]
+    assert ms.frequencies_Hz == pytest.approx(np.sqrt(np.sort(vals)) / (2 * math.pi), rel=1e-6)

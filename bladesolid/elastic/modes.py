@@ -27,6 +27,9 @@ from .static import solve_static
 
 LABELS = ("flatwise", "edgewise", "torsion", "axial")
 
+#: Extra vectors of the Rayleigh–Ritz subspace (see :func:`modes_at`).
+RITZ_EXTRA = 6
+
 #: Slabs along the span for the mode labels.
 LABEL_SLABS = 24
 
@@ -104,23 +107,41 @@ def modes_at(model: ElasticModel, rpm: float, n_modes: int = 8, *, stiffening: b
              solver: str = "direct", keep_shapes: bool = False, slabs: int = LABEL_SLABS, **static_kw) -> ModeSet:
     """The lowest ``n_modes`` natural frequencies at ``rpm`` with their labels.
 
-    The operator is that of the last stiffened pass of the steady state (docs/CONVENTIONS.md §10).
+    The operator is that of the last stiffened pass of the steady state (docs/CONVENTIONS.md §10):
+    by shift-invert Lanczos on its factor, or, when that pass was solved by CG on the first
+    pass's factor, by Rayleigh–Ritz on the lowest ``n_modes`` + :data:`RITZ_EXTRA` modes of
+    the first stiffened operator (one factorization per speed; the error is of second order
+    in the change of the prestress between the passes).
     """
     from scipy.sparse.linalg import LinearOperator, eigsh
 
     from . import assemble
     from .solvers import factorize
 
-    state, (A_ff, fac, _) = solve_static(model, rpm, stiffening=stiffening, solver=solver, keep_factor=True,
-                                         **static_kw)
+    state, last = solve_static(model, rpm, stiffening=stiffening, solver=solver, keep_factor=True, **static_kw)
     free = model.free
     M_ff = assemble.expand(model.mass_scalar)[free][:, free].tocsr()
-    if fac is None or solver != "direct":  # shift-invert wants the exact operator's factor
-        fac = factorize(A_ff, "direct")
+    A_ff, fac = last["A"], last["factor"]
     n = A_ff.shape[0]
     k = int(min(n_modes, n - 2))
-    op = LinearOperator((n, n), matvec=fac.solve, dtype=float)
-    vals, vecs = eigsh(A_ff, k=k, M=M_ff, sigma=0.0, which="LM", OPinv=op)
+    if fac is not None and solver == "direct":
+        op = LinearOperator((n, n), matvec=fac.solve, dtype=float)
+        vals, vecs = eigsh(A_ff, k=k, M=M_ff, sigma=0.0, which="LM", OPinv=op)
+    elif last["first_factor"] is not None and solver == "direct":
+        # Rayleigh–Ritz: the lowest modes of the first stiffened operator (factored exactly)
+        # span the subspace; the last operator differs from it only by the change of the
+        # prestress between passes, so the error is of second order in that change.
+        kk = int(min(k + RITZ_EXTRA, n - 2))
+        op = LinearOperator((n, n), matvec=last["first_factor"].solve, dtype=float)
+        _, V = eigsh(last["first_A"], k=kk, M=M_ff, sigma=0.0, which="LM", OPinv=op)
+        from scipy.linalg import eigh
+
+        w, y = eigh(V.T @ (A_ff @ V), V.T @ (M_ff @ V))
+        vals, vecs = w[:k], V @ y[:, :k]
+    else:
+        fac = factorize(A_ff, "direct", cache=model.cache)
+        op = LinearOperator((n, n), matvec=fac.solve, dtype=float)
+        vals, vecs = eigsh(A_ff, k=k, M=M_ff, sigma=0.0, which="LM", OPinv=op)
     order = np.argsort(vals)
     vals, vecs = vals[order], vecs[:, order]
     freq = np.sign(vals) * np.sqrt(np.abs(vals)) / (2.0 * math.pi)

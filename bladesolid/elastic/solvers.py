@@ -69,17 +69,17 @@ def factorize(A, solver: str = "direct", points: np.ndarray | None = None, cache
             Ac = A.tocsc()
             key = ("cholmod", A.shape[0])
             if cache is not None and key in cache:
-                f = cache[key]
+                f, nnz_l = cache[key]
                 f.cholesky_inplace(Ac)
             else:
                 f = analyze(Ac)
                 f.cholesky_inplace(Ac)
+                try:
+                    nnz_l = int(f.L().nnz)  # once per model: converting the factor costs a little
+                except Exception:  # pragma: no cover - older wrappers
+                    nnz_l = 0
                 if cache is not None:
-                    cache[key] = f
-            try:
-                nnz_l = int(f.L().nnz)
-            except Exception:  # pragma: no cover - older wrappers
-                nnz_l = 0
+                    cache[key] = (f, nnz_l)
             return Factor(f, "direct (CHOLMOD Cholesky, scikit-sparse)", int(matrix_bytes(A) + 12 * nnz_l))
         from scipy.sparse.linalg import splu
 

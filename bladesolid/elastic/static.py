@@ -207,9 +207,11 @@ def solve_static(model: ElasticModel, rpm: float, *, stiffening: bool = True,
       largest displacement by less than :data:`DISPLACEMENT_TOLERANCE` of itself)
     max_passes : largest number of stiffened passes (converged is False if it is reached)
     solver : ``direct`` or ``amg-cg`` (:mod:`.solvers`)
-    keep_factor : also return the last operator and its factor ``(result, (A_ff, factor, σ))``
-      (factor None when that operator was not factorized; a factor is valid until the next
-      solve with the same model, which may reuse its storage)
+    keep_factor : also return ``(result, last)``, last a dict: ``A`` the operator of the last
+      pass on the free DOFs, ``factor`` its factor (None when that pass was solved by CG),
+      ``stress`` the prestress it was built with, ``first_A`` / ``first_factor`` the first
+      stiffened pass's operator and factor (None for a linear solve). A factor is valid until
+      the next solve with the same model, which may reuse its storage.
     """
     if not (math.isfinite(rpm) and rpm >= 0):
         raise InputError("rpm", f"must be a speed of zero or more rpm, got {rpm!r}")
@@ -242,7 +244,7 @@ def solve_static(model: ElasticModel, rpm: float, *, stiffening: bool = True,
     passes = [StaticPass(0, untwist(model, U), float(_reaction(model, A, u, f) @ model.frame.e),
                          float(np.abs(U).max()))]
     converged = not stiffening or omega == 0.0
-    last = (K[free][:, free], None, sig)
+    last = {"A": K[free][:, free], "factor": None, "stress": sig, "first_A": None, "first_factor": None}
     first, cg_total = fac, 0
     if not converged:
         for k in range(1, int(max_passes) + 1):
@@ -255,13 +257,13 @@ def solve_static(model: ElasticModel, rpm: float, *, stiffening: bool = True,
             if k == 1 or solver != "direct":
                 u, fac = _state(model, A, f, free, solver, pts)
                 first = fac
-                last = (A_ff, fac, sig)
+                last = {"A": A_ff, "factor": fac, "stress": sig, "first_A": A_ff, "first_factor": fac}
             else:  # the operator changes little from pass to pass: CG on the first pass's factor
                 u_ff, cg_its = _pcg(A_ff, f[free], first, u[free])
                 u = np.zeros_like(u)
                 u[free] = u_ff
                 cg_total += cg_its
-                last = (A_ff, None, sig)
+                last = dict(last, A=A_ff, factor=None, stress=sig)
             timings["solve"] += time.perf_counter() - t0
             mem = max(mem, first.memory_bytes + matrix_bytes(A))
             U = u.reshape(-1, 3)
