@@ -86,12 +86,19 @@ def render_von_mises(model: ElasticModel, state: StaticResult, path, view: str =
     else:
         d = frame.f + 0.8 * frame.t - 0.5 * frame.e
         d, up = d / np.linalg.norm(d), frame.e
-    pl.camera.position = tuple(centre + 3.0 * size * d)
-    pl.camera.focal_point = tuple(centre)
-    pl.camera.up = tuple(up)
+    right = np.cross(up, d)
+    right /= np.linalg.norm(right)
+    up = np.cross(d, right)
+    u, w = (pts - centre) @ right, (pts - centre) @ up
+    mid = centre + 0.5 * (u.max() + u.min()) * right + 0.5 * (w.max() + w.min()) * up
+    half_h = max(0.5 * np.ptp(w), 0.5 * np.ptp(u) * win[1] / win[0], 1e-9)
+    mid = mid - 0.3 * half_h * up  # the blade a little above the middle: the bar and caution go below
     pl.enable_parallel_projection()
-    pl.reset_camera()
-    pl.camera.zoom(1.25 if view == "planform" else 1.1)
+    pl.camera.focal_point = tuple(mid)
+    pl.camera.position = tuple(mid + 3.0 * size * d)
+    pl.camera.up = tuple(up)
+    pl.camera.parallel_scale = 1.45 * half_h  # room for the titles above and the bar and caution below
+    pl.camera.clipping_range = (0.1 * size, 6.0 * size)
     i = state.max_von_mises_element
     peak = state.max_von_mises_at_m
     pl.add_point_labels(np.array([peak]), [f"max {state.max_von_mises_Pa / 1e6:.4g} MPa"], font_size=16,
@@ -102,7 +109,7 @@ def render_von_mises(model: ElasticModel, state: StaticResult, path, view: str =
     pl.add_text(f"{state.elements:,} quadratic tetrahedra, {state.dofs:,} DOFs; untwist {state.untwist_deg:+.4g}°; "
                 f"max at element {i} ({peak[0] * 1e3:.1f}, {peak[1] * 1e3:.1f}, {peak[2] * 1e3:.1f}) mm",
                 position=(0.015 * win[0], win[1] - 80), font_size=11, color=INK)
-    for j, line in enumerate(reversed(_caution_lines(125))):
+    for j, line in enumerate(reversed(_caution_lines(110))):
         pl.add_text(line, position=(0.015 * win[0], 10 + j * 20), font_size=11, color=INK)
     with staged_file(path, force) as tmp:
         pl.screenshot(tmp)
