@@ -4,7 +4,9 @@
 Lanczos): CHOLMOD (through scikit-sparse, the optional ``fast`` extra; SuiteSparse, LGPL/GPL)
 when it is installed, else scipy's SuperLU (``splu``) with the minimum-degree ordering of
 AᵀA + A and symmetric mode. SuperLU's fill and time grow much faster with the mesh: it suits
-meshes up to some 10⁴ quadratic elements (``scripts/bench.py`` measures both). ``amg-cg``: pyamg smoothed aggregation with the six rigid-body
+meshes up to some 10⁴ quadratic elements (``scripts/bench.py`` measures both). CHOLMOD's
+supernodal factorization runs on the system BLAS: with the reference BLAS it is several
+times slower than with an optimised one (OpenBLAS). ``amg-cg``: pyamg smoothed aggregation with the six rigid-body
 modes as near-null space, as a preconditioner of scipy's CG to a relative residual of
 :data:`CG_RTOL`. ``scripts/bench.py`` measures one against the other on a blade.
 """
