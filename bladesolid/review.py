@@ -292,9 +292,9 @@ def counterweight_section(blade, job, op0):
 
 def _png(fn, *args, **kw) -> bytes:
     """Call a plotting function that writes a PNG path; return the bytes (temp file)."""
-    import tempfile
+    from .safefile import temp_folder
 
-    with tempfile.TemporaryDirectory() as d:
+    with temp_folder() as d:
         p = os.path.join(d, "x.png")
         fn(*args, p, **kw)
         with open(p, "rb") as fh:
@@ -393,9 +393,9 @@ def write_review(rv: Review, folder, force: bool = False, progress=None, with_vi
 
 
 def _vtu_bytes(views, grid) -> bytes:
-    import tempfile
+    from .safefile import temp_folder
 
-    with tempfile.TemporaryDirectory() as d:
+    with temp_folder() as d:
         p = os.path.join(d, "elements.vtu")
         views.write_vtu(grid, p, force=True)
         with open(p, "rb") as fh:
