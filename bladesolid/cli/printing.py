@@ -93,7 +93,7 @@ def release(note: str | None = None) -> None:
     st = _SESSION.get()
     if st is None:
         if note:
-            live_console().print(f"[yellow]warning:[/yellow] {esc(note)}")
+            live_console().print(f"[yellow]warning:[/yellow] {esc(note)}", soft_wrap=True)
         return
     _stop_status(st)
     if note:
@@ -106,7 +106,7 @@ def release(note: str | None = None) -> None:
     if st.notes:
         live = live_console()
         for n in st.notes:
-            live.print(f"[yellow]warning:[/yellow] {esc(n)}")
+            live.print(f"[yellow]warning:[/yellow] {esc(n)}", soft_wrap=True)
         st.notes.clear()
     sys.stderr.flush()
 
@@ -180,7 +180,7 @@ def esc(text) -> str:
 def warn(con, blade):
     """The blade's warnings, one line each."""
     for w in blade.warnings:
-        con.print(f"[yellow]warning:[/yellow] {esc(w)}")
+        con.print(f"[yellow]warning:[/yellow] {esc(w)}", soft_wrap=True)  # one line each, whatever the width
 
 
 def fmt(x, digits=6):
