@@ -12,10 +12,9 @@ import subprocess
 import sys
 from pathlib import Path
 
-import pytest
 import trimesh
 
-from bladesolid.cli import main
+from .test_cli import run  # noqa: F401 - (exit status, stdout, stderr) of bladesolid argv, in this process
 
 REPO = Path(__file__).resolve().parents[1]
 DEMO = REPO / "meshes" / "demo_blade.stl"
@@ -48,17 +47,6 @@ def job_file(folder: Path, mesh: Path, name: str = "job.toml", **keys) -> Path:
     p = Path(folder) / name
     p.write_text("".join(f"{k} = {v}\n" for k, v in base.items()) + tables)
     return p
-
-
-def run(argv, capsys):
-    """(exit status, stdout, stderr) of ``bladesolid argv`` in this process."""
-    capsys.readouterr()
-    try:
-        code = main([str(a) for a in argv])
-    except BaseException as exc:  # anything escaping main() would be a traceback for the user
-        pytest.fail(f"main({argv!r}) raised {type(exc).__name__}: {exc}")
-    out, err = capsys.readouterr()
-    return code, out, err
 
 
 def leftovers(folder) -> list[str]:
