@@ -344,7 +344,7 @@ def _check_element_request(volume_m3: float, max_volume_m3, target, meshed: bool
         count, problem = bounds.element_budget(volume_m3, max_volume_m3=max_volume_m3)
         if problem:
             least = volume_m3 / bounds.allowed_elements()
-            raise InputError("max_element_volume_m3", f"{max_volume_m3:.3g} m^3 would give at least {count:.3g} mass "
+            raise InputError("max_element_volume_m3", f"{max_volume_m3:.3g} m^3 would give about {count:.3g} mass "
                                                       f"elements for this solid ({volume_m3:.3g} m^3), {problem}; "
                                                       f"give at least {least:.3g} m^3")
     elif target is not None:

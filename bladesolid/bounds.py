@@ -185,13 +185,15 @@ def allowed_elements() -> int:
 
 
 def element_budget(volume_m3: float, max_volume_m3: float | None = None, target: int | None = None) -> tuple[float, str]:
-    """The fewest mass elements a request gives, and what is wrong with it ("" when nothing).
+    """About how many mass elements a request gives, and what is wrong with it ("" when nothing).
 
     volume_m3 : the solid's volume; max_volume_m3 : the largest element volume asked for;
-    target : the element count asked for. TetGen honours a volume bound with *at least*
-    ``volume / max_volume`` elements (more where the surface forces smaller ones), so the
-    estimate is a lower bound. It is refused above :data:`MAX_ELEMENTS` or when that many
-    elements would need more memory (:data:`ELEMENT_BYTES` each) than the machine has.
+    target : the element count asked for. TetGen fills the interior to the volume bound, so a
+    bound gives about ``volume / max_volume`` elements (more where the surface forces smaller
+    ones, fewer where elements stand on large surface triangles, which the surface-preserving
+    switches never split: that only matters when the bound is coarse). It is refused above
+    :data:`MAX_ELEMENTS` or when that many elements would need more memory
+    (:data:`ELEMENT_BYTES` each) than the machine has.
 
     >>> element_budget(1e-3, max_volume_m3=1e-9)
     (1000000.0, '')

@@ -690,7 +690,7 @@ def check_against_blade(job: Job, blade) -> list[str]:
         count, problem = bounds.element_budget(volume, max_volume_m3=bounds.regular_tet_volume(job.element_size_m))
         if problem:
             least = bounds.smallest_element_size(volume, bounds.allowed_elements())
-            raise InputError(job.where("element_size"), f"{model(job.element_size_m)} would give at least {count:.3g} "
+            raise InputError(job.where("element_size"), f"{model(job.element_size_m)} would give about {count:.3g} "
                                                         f"mass elements for this solid ({volume:.3g} m^3), {problem}; "
                                                         f"give at least {model(least)}")
     if job.elements is not None:
