@@ -231,6 +231,7 @@ def load_blade(
     field_faces: int | None = None,
     progress=None,
     angle_line: str = "chord",
+    check=None,
 ) -> Blade:
     """Load, validate, mesh and integrate a blade.
 
@@ -249,6 +250,13 @@ def load_blade(
     progress : optional callable(stage: str) told when each stage starts
     angle_line : the reference line of the modelled blade angle, ``"chord"`` (nose to tail) or
       ``"face"`` (a straightedge on the face); both angles are kept (docs/CONVENTIONS.md §2)
+    check : optional callable(blade) → warnings, run on the surface-route blade before the mass
+      elements are built: it may refuse (raise :class:`InputError`) before the costly meshing,
+      and the warnings it returns are added to the blade's
+
+    An element request beyond :func:`bladesolid.bounds.element_budget` (too many elements for
+    the limit or for this machine's memory) is refused before meshing, naming
+    ``max_element_volume_m3`` or ``target_elements``.
 
     A flat bar 40 × 600 × 10 mm from r = 100 mm to 700 mm, aluminium, at 1000 rpm:
 
@@ -286,10 +294,17 @@ def load_blade(
         reference_fraction=reference_fraction, name=name or str(path).replace("\\", "/").rsplit("/", 1)[-1],
         source=str(path), units=units, warnings=loaded.warnings, angle_line=angle_line,
     )
+    if check is not None:
+        extra = tuple(check(blade) or ())
+        if extra:
+            blade = replace(blade, warnings=blade.warnings + extra)
     if all(b.tets is not None for b in bodies):
         elements = True  # a volume mesh brings its elements: no meshing, so always use them
     if not elements:
         return blade
+    _check_element_request(blade.volume_m3, max_element_volume_m3, target_elements,
+                           meshed=any(b.tets is None for b in bodies) or max_element_volume_m3 is not None
+                           or target_elements is not None)
     from .mesh import mass_elements
     from .moments import tet_volume_moments
 
@@ -317,6 +332,30 @@ def load_blade(
                    field_resolution=field_info, warnings=tuple(warnings))
 
 
+def _check_element_request(volume_m3: float, max_volume_m3, target, meshed: bool) -> None:
+    """Refuse (naming the parameter) an element request beyond :func:`bladesolid.bounds.element_budget`."""
+    from . import bounds
+
+    if not meshed:
+        return
+    if max_volume_m3 is not None:
+        if not (math.isfinite(max_volume_m3) and max_volume_m3 > 0):
+            raise InputError("max_element_volume_m3", f"must be a positive volume in m^3, got {max_volume_m3!r}")
+        count, problem = bounds.element_budget(volume_m3, max_volume_m3=max_volume_m3)
+        if problem:
+            least = volume_m3 / bounds.allowed_elements()
+            raise InputError("max_element_volume_m3", f"{max_volume_m3:.3g} m^3 would give about {count:.3g} mass "
+                                                      f"elements for this solid ({volume_m3:.3g} m^3), {problem}; "
+                                                      f"give at least {least:.3g} m^3")
+    elif target is not None:
+        if int(target) < 1:
+            raise InputError("target_elements", f"must be at least 1, got {target!r}")
+        _, problem = bounds.element_budget(volume_m3, target=int(target))
+        if problem:
+            raise InputError("target_elements", f"{int(target):,} mass elements, {problem}; give at most "
+                                                f"{bounds.allowed_elements():,}")
+
+
 def blade_from_surfaces(surfaces, materials, frame: HubFrame, *, lumped=(), reference_radius_m: float | None = None,
                         reference_fraction: float = 0.75, name: str = "blade", source: str = "surfaces",
                         units: str = "m", warnings=(), angle_line: str = "chord") -> Blade:
@@ -331,12 +370,18 @@ def blade_from_surfaces(surfaces, materials, frame: HubFrame, *, lumped=(), refe
 
     Each body's moments are the exact closed-surface integral times its density; the blade
     angle is measured at the reference station (a warning, not an error, when it cannot be).
+    A density outside the usual range of solids is a warning (:func:`bladesolid.bounds.density_warning`).
     """
+    from .bounds import density_warning
     from .moments import surface_volume_moments
 
     surfaces = tuple((np.asarray(v, dtype=float), np.asarray(f, dtype=np.int64)) for v, f in surfaces)
     materials = tuple(materials)
     warnings = list(warnings)
+    for mat in dict.fromkeys(materials):
+        odd = density_warning(mat.density_kg_m3, mat.label)
+        if odd and odd not in warnings:
+            warnings.append(odd)
     body_moments = tuple(surface_volume_moments(v, f).scaled(m.density_kg_m3) for (v, f), m in zip(surfaces, materials))
     lumped = tuple(lumped)
     lumped_moments = zero_moments()
@@ -484,9 +529,14 @@ def resolve_blade_angle(blade: Blade, blade_angle_deg: float | None = None,
     (neither: the modelled angle). An absolute angle needs the modelled angle measured at the
     reference station, since the blade is turned from there.
     """
+    from .bounds import check_angle
+
     if blade_angle_deg is not None and pitch_change_deg is not None:
         raise InputError("blade_angle_deg", "give either blade_angle_deg or pitch_change_deg, not both")
+    if pitch_change_deg is not None:
+        check_angle(pitch_change_deg, "pitch_change_deg", "pitch change")
     if blade_angle_deg is not None:
+        check_angle(blade_angle_deg, "blade_angle_deg")
         if blade.modelled_angle is None:
             raise InputError(blade.source, "the modelled blade angle could not be measured at the reference station; "
                                            "give pitch_change_deg (a change from the modelled angle) instead")
@@ -497,6 +547,10 @@ def resolve_blade_angle(blade: Blade, blade_angle_deg: float | None = None,
 def loads_at(blade: Blade, rpm: float, blade_angle_deg: float | None = None,
              pitch_change_deg: float | None = None, name: str = "") -> OperatingLoads:
     """Centrifugal loads at ``rpm`` and an absolute blade angle (or a pitch change)."""
+    from .bounds import check_rpm, tip_speed_check
+
+    check_rpm(rpm, "rpm")
+    tip_speed_check(rpm, blade.tip_radius_m, "rpm")  # refuses beyond any material; the job route warns
     beta = resolve_blade_angle(blade, blade_angle_deg, pitch_change_deg)
     return operating_loads(blade.moments, blade.frame, blade.modelled_deg, beta, rpm, name=name,
                            curve=blade.ctm_curve)
@@ -509,8 +563,14 @@ def loads_for_job(blade: Blade, job) -> list[OperatingLoads]:
 
 def pitch_sweep(blade: Blade, rpm: float, lo_deg: float, hi_deg: float, step_deg: float):
     """(β (deg), CTM (N·m), pitch stiffness (N·m/rad)) arrays over a blade-angle range."""
+    from .bounds import MAX_SWEEP_POINTS, check_angle, check_rpm
     from .job import range_points
 
+    check_rpm(rpm, "rpm")
+    for v in (lo_deg, hi_deg):
+        check_angle(v, "lo_deg:hi_deg:step_deg", "the sweep's ends")
+    if step_deg > 0 and (hi_deg - lo_deg) / step_deg >= MAX_SWEEP_POINTS:
+        raise InputError("lo_deg:hi_deg:step_deg", f"asks for more than {MAX_SWEEP_POINTS:,} points; give a larger step")
     betas = range_points(lo_deg, hi_deg, step_deg, "lo_deg:hi_deg:step_deg")
     omega = rpm_to_rad_s(rpm)
     return betas, blade.ctm_curve.ctm(betas, omega), blade.ctm_curve.pitch_stiffness(betas, omega)
@@ -522,7 +582,7 @@ def pitch_sweep(blade: Blade, rpm: float, lo_deg: float, hi_deg: float, step_deg
 def blade_from_job(job, *, elements: bool = True, model_transform=None, progress=None) -> Blade:
     """Load the blade a validated :class:`bladesolid.job.Job` describes (``model_transform``:
     an optional 4x4 applied to the mesh first, see :func:`load_blade`)."""
-    from .job import check_pitch_point, hub_frame_of
+    from .job import check_against_blade, check_pitch_point, hub_frame_of
 
     frame = hub_frame_of(job)
     lumped = tuple(LumpedMass(n, m, np.asarray(p, float)) for n, m, p in job.lumped)
@@ -542,6 +602,7 @@ def blade_from_job(job, *, elements: bool = True, model_transform=None, progress
         field_faces=job.field_faces,
         progress=progress,
         angle_line=job.angle_line,
+        check=lambda b: check_against_blade(job, b),
     )
     if job.pitch_point_m is not None:
         check_pitch_point(frame, blade.moments.cg, blade.tip_radius_m, f"{job.source}")

@@ -59,7 +59,8 @@ from dataclasses import dataclass
 
 from .errors import InputError, one_line
 
-__all__ = ["COLUMNS", "COMMANDS", "SUMMARY_SCHEMA", "BatchResult", "collect_jobs", "run_batch", "run_job"]
+__all__ = ["COLUMNS", "COMMANDS", "SUMMARY_SCHEMA", "BatchResult", "collect_jobs", "lost_worker_reason", "run_batch",
+           "run_job"]
 
 COMMANDS = ("mass", "loads", "check")
 SUMMARY_SCHEMA = "bladesolid.batch/1"
@@ -143,6 +144,23 @@ def _about(job_path, problem) -> str:
     text = one_line(problem)
     job = os.fspath(job_path)
     return text if text.startswith(job) else one_line(f"{job}: {text}")
+
+
+def lost_worker_reason(job_path, exc: BaseException) -> str:
+    """The one-line reason of a job whose task ended without a row: its worker process died
+    (dask's ``KilledWorker``: the process was killed, most often by the out-of-memory killer or
+    the nanny's memory limit) or was lost with the connection to it.
+
+    >>> class KilledWorker(Exception): pass
+    >>> lost_worker_reason("/jobs/b7.toml", KilledWorker("Attempted to run task ... 3 times"))
+    '/jobs/b7.toml: worker process died (out of memory?) while processing this blade; try a coarser mesh or workers with more memory'
+    """
+    name = type(exc).__name__
+    if name in ("KilledWorker", "CommClosedError", "CancelledError", "FutureCancelledError") or isinstance(
+            exc, (ConnectionError, EOFError)):
+        return _about(job_path, "worker process died (out of memory?) while processing this blade; try a coarser "
+                                "mesh or workers with more memory")
+    return _about(job_path, f"the worker running it failed ({name}: {one_line(exc, 200)})")
 
 
 def _finite(x):
@@ -336,8 +354,7 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
                     row = f.result()
                 except Exception as exc:  # the worker died (memory, killed), not the blade
                     row = {c: None for c in COLUMNS}
-                    row.update(job=jobs[i], status=FAILED,
-                               reason=one_line(f"the worker running it was lost ({type(exc).__name__}: {exc})"))
+                    row.update(job=jobs[i], status=FAILED, reason=lost_worker_reason(jobs[i], exc))
                 finished(i, row)
         finally:
             if own is not None:

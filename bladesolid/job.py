@@ -17,10 +17,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from . import bounds
 from .errors import InputError
 
-__all__ = ["EXAMPLE_JOB", "KEYS", "build_job", "check_pitch_point", "CounterweightRequest", "hub_frame_of", "Job",
-           "load_job", "OperatingPoint", "range_points", "require_operating_points"]
+__all__ = ["EXAMPLE_JOB", "KEYS", "build_job", "check_against_blade", "check_pitch_point", "CounterweightRequest",
+           "hub_frame_of", "Job", "load_job", "OperatingPoint", "range_points", "require_operating_points"]
 
 EXAMPLE_JOB = '''\
 # bladesolid job file: every key has the command-line flag of the same name
@@ -177,6 +178,18 @@ class Job:
     reference: str | None = None
     limits: str | None = None
     set_reports: tuple = ()
+    #: (key, where) of every key given: where it came from as messages name it (the flag, or
+    #: the file and key); "operating_point#i" names where the i-th operating point came from
+    origins: tuple = ()
+
+    def where(self, key: str) -> str:
+        """Where ``key`` was given, as messages name it: ``--flag``, or ``file: key 'name'``."""
+        found = dict(self.origins).get(key)
+        if found:
+            return found
+        if self.source == "command line" and KEYS.get(key):
+            return KEYS[key]
+        return f"{self.source}: key '{key}'"
 
 
 def _parse_range(text, source: str, key: str) -> tuple[float, float, float]:
@@ -195,8 +208,9 @@ def _parse_range(text, source: str, key: str) -> tuple[float, float, float]:
         raise InputError(source, f"{key} must be FROM:TO:STEP (three numbers), got {text!r}") from None
     if not all(math.isfinite(x) for x in (lo, hi, step)) or step <= 0 or hi < lo:
         raise InputError(source, f"{key} must have TO >= FROM and STEP > 0, got {text!r}")
-    if (hi - lo) / step > 1_000_000:
-        raise InputError(source, f"{key} asks for more than a million points, got {text!r}")
+    if (hi - lo) / step >= bounds.MAX_SWEEP_POINTS:
+        raise InputError(source, f"{key} asks for more than {bounds.MAX_SWEEP_POINTS:,} points, got {text!r}; "
+                                 "give a larger STEP")
     return lo, hi, step
 
 
@@ -358,6 +372,7 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
 
     # operating points
     ops = []
+    op_where: list[str] = []
     if "operating_point" in merged and "rpm" in from_flag:
         merged.pop("operating_point")  # --rpm replaces the job's operating points
     if "operating_point" in merged:
@@ -366,11 +381,16 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
             rpm = _num(t["rpm"], where, "rpm")
             if rpm < 0:
                 raise InputError(where, f"rpm must not be negative, got {rpm}")
+            bounds.check_rpm(rpm, where)
+            op_where.append(where)
             nm = t.get("name", f"point {i}")
             if not isinstance(nm, str):
                 raise InputError(where, f"name must be a string, got {nm!r}")
             ba = _num(t["blade_angle"], where, "blade_angle") if "blade_angle" in t else None
             pc = _num(t["pitch_change"], where, "pitch_change") if "pitch_change" in t else None
+            for v, what in ((ba, "blade_angle"), (pc, "pitch_change")):
+                if v is not None:
+                    bounds.check_angle(v, where, what)
             if ba is not None and pc is not None:
                 raise InputError(where, "give either blade_angle or pitch_change, not both")
             ops.append(OperatingPoint(nm, rpm, ba, pc))
@@ -381,9 +401,17 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
             rpm = _num(r, w("rpm"), "rpm")
             if rpm < 0:
                 raise InputError(w("rpm"), f"must not be negative, got {rpm}")
+            bounds.check_rpm(rpm, w("rpm"))
             ops.append(OperatingPoint(f"{rpm:g} rpm", rpm))
+            op_where.append(w("rpm"))
+    if len(ops) > bounds.MAX_OPERATING_POINTS:
+        raise InputError(source, f"{len(ops)} operating points, more than the {bounds.MAX_OPERATING_POINTS} accepted")
     ba_all = opt_num("blade_angle")
     pc_all = opt_num("pitch_change")
+    if ba_all is not None:
+        bounds.check_angle(ba_all, w("blade_angle"))
+    if pc_all is not None:
+        bounds.check_angle(pc_all, w("pitch_change"), "pitch change")
     if ba_all is not None and pc_all is not None:
         raise InputError(source, "give either blade_angle (--blade-angle) or pitch_change (--pitch-change), not both")
     if ba_all is not None or pc_all is not None:
@@ -397,13 +425,19 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
         ]
 
     sweep = _parse_range(merged["sweep"], w("sweep"), "sweep") if "sweep" in merged else (-10.0, 90.0, 1.0)
+    for v in sweep[:2]:
+        bounds.check_angle(v, w("sweep"), "the sweep's FROM and TO")
     rpm_sweep = _parse_range(merged["rpm_sweep"], w("rpm_sweep"), "rpm_sweep") if "rpm_sweep" in merged else None
+    for v in rpm_sweep[:2] if rpm_sweep else ():
+        bounds.check_rpm(v, w("rpm_sweep"), "the speed sweep's FROM and TO")
 
     stations = merged.get("stations", 16)
     if isinstance(stations, str):
         parts = [p for p in stations.split(",") if p.strip()]
         stations = parts[0] if len(parts) == 1 else parts
     if isinstance(stations, list):
+        if len(stations) > bounds.MAX_STATIONS:
+            raise InputError(w("stations"), f"{len(stations)} station radii, more than the {bounds.MAX_STATIONS} accepted")
         radii = tuple(_num(s, w("stations"), "station radius") * scale for s in stations)
         if not radii or any(r <= 0 for r in radii):
             raise InputError(w("stations"), "station radii must be positive")
@@ -414,18 +448,26 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
             raise InputError(w("stations"), f"station count must be between 1 and 2000, got {stations}")
 
     allowable = parse_stress(merged["allowable"], w("allowable")) if "allowable" in merged else None
+    if allowable is not None and allowable > bounds.MAX_ALLOWABLE_PA:
+        raise InputError(w("allowable"), f"{allowable:g} Pa is above {bounds.MAX_ALLOWABLE_PA:g} Pa, stronger than "
+                                         "any solid; check the number and its unit")
     proof = opt_num("proof_factor")
     if proof is not None and proof <= 0:
         raise InputError(w("proof_factor"), f"must be positive, got {proof}")
+    if proof is not None and proof > bounds.MAX_PROOF_FACTOR:
+        raise InputError(w("proof_factor"), f"must be at most {bounds.MAX_PROOF_FACTOR:g} (the usual factor is 2), "
+                                            f"got {proof:g}")
     rated_rpm = opt_num("rated_rpm")
     if rated_rpm is not None and rated_rpm <= 0:
         raise InputError(w("rated_rpm"), f"must be a positive speed in rpm, got {rated_rpm}")
+    if rated_rpm is not None:
+        bounds.check_rpm(rated_rpm, w("rated_rpm"))
     angle_line = merged.get("angle_line", "chord")
     if angle_line not in ("chord", "face"):
         raise InputError(w("angle_line"), f"must be \"chord\" or \"face\", got {angle_line!r}")
     elements = opt_num("elements", integer=True)
-    if elements is not None and not (1 <= elements <= 50_000_000):
-        raise InputError(w("elements"), f"must be between 1 and 50 000 000, got {elements}")
+    if elements is not None and not (1 <= elements <= bounds.MAX_ELEMENTS):
+        raise InputError(w("elements"), f"must be between 1 and {bounds.MAX_ELEMENTS:,}, got {elements}")
     element_size = opt_num("element_size")
     if element_size is not None and element_size <= 0:
         raise InputError(w("element_size"), f"must be positive, got {element_size}")
@@ -436,6 +478,8 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
     lumped = []
     if "lumped_mass" in merged:
         tables = _checked_tables(merged["lumped_mass"], source, "lumped_mass", _LUMPED_KEYS, ("mass", "position"))
+        if len(tables) > bounds.MAX_LUMPED_MASSES:
+            raise InputError(source, f"{len(tables)} lumped masses, more than the {bounds.MAX_LUMPED_MASSES} accepted")
         for i, (where, t) in enumerate(tables, 1):
             nm = t.get("name", f"lumped mass {i}")
             if not isinstance(nm, str):
@@ -465,9 +509,10 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
         cw = CounterweightRequest(
             radius_m=_num(t["radius"], where, "radius") * scale,
             arm_m=arm,
-            clocking_deg=_num(t["clocking"], where, "clocking"),
-            blade_angle_deg=_num(t["blade_angle"], where, "blade_angle") if "blade_angle" in t else None,
-            rpm=_num(t["rpm"], where, "rpm") if "rpm" in t else None,
+            clocking_deg=bounds.check_angle(_num(t["clocking"], where, "clocking"), where, "clocking"),
+            blade_angle_deg=bounds.check_angle(_num(t["blade_angle"], where, "blade_angle"), where)
+            if "blade_angle" in t else None,
+            rpm=bounds.check_rpm(_num(t["rpm"], where, "rpm"), where) if "rpm" in t else None,
             target_ctm_Nm=target,
         )
 
@@ -511,6 +556,8 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
         reference=path_of("reference") if "reference" in merged else None,
         limits=path_of("limits") if "limits" in merged else None,
         set_reports=set_reports,
+        origins=tuple((k, w(k)) for k in merged if KEYS.get(k) != "")
+        + tuple((f"operating_point#{i}", wh) for i, wh in enumerate(op_where)),
     )
 
 
@@ -556,3 +603,99 @@ def check_pitch_point(frame, cg_hub: np.ndarray, tip_radius_m: float, source: st
             f"pitch_point puts the pitch axis {off:.4g} m from the blade's centre of gravity "
             f"(more than half the tip radius {tip_radius_m:.4g} m); check the point and its unit",
         )
+
+
+def check_against_blade(job: Job, blade) -> list[str]:
+    """Refuse the job's values that do not fit its blade, before any costly work; return the
+    plausibility warnings (docs/CONVENTIONS.md §7). ``blade``: the surface-route
+    :class:`~bladesolid.api.Blade` (hub frame), before its mass elements are built.
+
+    Refused, each naming its key (or flag): a hub frame that puts the blade far off the pitch
+    axis or on no radius of its own (``hub_centre``, ``pitch_axis``); a reference radius or a
+    station off the blade (``reference_radius``, ``stations``); a lumped mass or counterweight
+    more than :data:`~bladesolid.bounds.REACH_TIP_RADII` tip radii from the hub centre; a speed
+    whose tip Mach number passes :data:`~bladesolid.bounds.TIP_MACH_MAX` (a warning above
+    :data:`~bladesolid.bounds.TIP_MACH_WARN`); an element size or count beyond
+    :func:`~bladesolid.bounds.element_budget`.
+    """
+    from .units import length_scale
+
+    scale = length_scale(job.units, job.where("units"))
+    u = job.units
+
+    def model(x_m: float) -> str:
+        return f"{x_m / scale:.4g} {u}"
+
+    tip = float(blade.tip_radius_m)
+    root = float(min(v[:, 1].min() for v, _ in blade.surfaces))
+    frame_key = "hub_centre" if any(k == "hub_centre" for k, _ in job.origins) or not any(
+        k == "pitch_axis" for k, _ in job.origins) else "pitch_axis"
+    if tip <= 0.0:
+        raise InputError(job.where(frame_key), f"the whole blade lies inboard of the hub centre (its outermost "
+                                               f"point is at r = {model(tip)} along the pitch axis); check "
+                                               "hub_centre, pitch_axis and their unit")
+    if job.pitch_point_m is None:
+        frame = blade.frame
+        d = blade.surface_moments.cg - frame.P
+        off = float(np.linalg.norm(d - (d @ frame.e) * frame.e))
+        if off > 0.5 * tip:
+            raise InputError(job.where(frame_key), f"the blade's centre of gravity lies {model(off)} from the pitch "
+                                                   f"axis, more than half its tip radius ({model(tip)}): the blade "
+                                                   "is not on the pitch axis; check hub_centre, pitch_axis and their "
+                                                   "unit (common practice, no source)")
+    if root > 0.0 and tip - root < 0.05 * tip:
+        raise InputError(job.where(frame_key), f"the blade spans only r = {model(root)} to {model(tip)} from the hub "
+                                               "centre, less than 5 % of its radius: the hub centre lies far inboard "
+                                               "of the blade; check hub_centre and its unit (common practice, no "
+                                               "source)")
+    if job.reference_radius_m is not None and not (root <= job.reference_radius_m <= tip):
+        raise InputError(job.where("reference_radius"), f"r = {model(job.reference_radius_m)} is off the blade, which "
+                                                        f"spans r = {model(root)} to {model(tip)}")
+    if isinstance(job.stations, tuple):
+        off_blade = [r for r in job.stations if not (root <= r <= tip)]
+        if off_blade:
+            raise InputError(job.where("stations"), f"station r = {model(off_blade[0])} is off the blade, which "
+                                                    f"spans r = {model(root)} to {model(tip)}")
+    reach = bounds.REACH_TIP_RADII * tip
+    for i, (name, _, pos) in enumerate(job.lumped, 1):
+        r = float(np.linalg.norm(blade.frame.to_hub(np.asarray(pos, dtype=float))))
+        if r > reach:
+            raise InputError(f"{job.source}: lumped_mass {i}", f"{name!r} is {model(r)} from the hub centre, more "
+                                                               f"than {bounds.REACH_TIP_RADII:g} tip radii "
+                                                               f"({model(reach)}); check its position and unit")
+    cw = job.counterweight
+    if cw is not None and (abs(cw.radius_m) > reach or cw.arm_m > reach):
+        raise InputError(f"{job.source}: counterweight", f"radius {model(cw.radius_m)} or arm {model(cw.arm_m)} is "
+                                                         f"more than {bounds.REACH_TIP_RADII:g} tip radii "
+                                                         f"({model(reach)}); check them and their unit")
+    warnings = []
+    fastest = None
+    for i, op in enumerate(job.operating_points):
+        w = bounds.tip_speed_check(op.rpm, tip, job.where(f"operating_point#{i}"),
+                                   "rpm" if op.name.endswith(" rpm") else f"rpm of {op.name!r}")
+        if w and (fastest is None or op.rpm > fastest[0]):
+            fastest = (op.rpm, w)
+    if fastest:
+        warnings.append(fastest[1])
+    if job.rated_rpm is not None:
+        w = bounds.tip_speed_check(job.rated_rpm, tip, job.where("rated_rpm"), "rated_rpm")
+        if w and (fastest is None or job.rated_rpm > fastest[0]):
+            warnings.append(w)
+    if job.rpm_sweep is not None:
+        bounds.tip_speed_check(job.rpm_sweep[1], tip, job.where("rpm_sweep"), "the speed sweep's TO")
+    if cw is not None and cw.rpm is not None:
+        bounds.tip_speed_check(cw.rpm, tip, f"{job.source}: counterweight", "rpm")
+    volume = blade.volume_m3
+    if job.element_size_m is not None:
+        count, problem = bounds.element_budget(volume, max_volume_m3=bounds.regular_tet_volume(job.element_size_m))
+        if problem:
+            least = bounds.smallest_element_size(volume, bounds.allowed_elements())
+            raise InputError(job.where("element_size"), f"{model(job.element_size_m)} would give about {count:.3g} "
+                                                        f"mass elements for this solid ({volume:.3g} m^3), {problem}; "
+                                                        f"give at least {model(least)}")
+    if job.elements is not None:
+        _, problem = bounds.element_budget(volume, target=job.elements)
+        if problem:
+            raise InputError(job.where("elements"), f"{job.elements:,} mass elements, {problem}; give at most "
+                                                    f"{bounds.allowed_elements():,}")
+    return warnings

@@ -48,11 +48,9 @@ from __future__ import annotations
 import contextlib
 import os
 import pickle
-import shutil
 import signal
 import subprocess
 import sys
-import tempfile
 from dataclasses import dataclass
 
 import numpy as np
@@ -60,7 +58,9 @@ import numpy as np
 from .errors import InputError
 from .geometry import orient_positive, tet_signed_volumes  # noqa: F401 - the one definition, re-exported
 
-#: Prefix of the private temporary folder that each tetrahedraliser run works in.
+#: Prefix of the private temporary folder that each tetrahedraliser run works in (the one prefix
+#: of every temporary name, :data:`bladesolid.safefile.TEMP_PREFIX`; the full name carries the
+#: process id and host, so that a later run can sweep the folder of a run that was killed).
 TEMP_PREFIX = "bladesolid-"
 
 #: How TetGen is run: ``"fork"`` (Linux default), ``"spawn"`` (a fresh interpreter; the
@@ -172,8 +172,9 @@ def run_tetgen(
     }
     import tetgen  # noqa: F401  (imported here so that a forked child has it already)
 
-    workdir = tempfile.mkdtemp(prefix=TEMP_PREFIX)
-    try:
+    from .safefile import temp_folder
+
+    with temp_folder() as workdir:
         if isolation == "inline":
             with contextlib.chdir(workdir), _quiet_stdout():
                 payload = _tetgen_payload(job)
@@ -184,8 +185,6 @@ def run_tetgen(
                 payload = _run_spawned(job, workdir)
         else:
             payload = _run_spawned(job, workdir)
-    finally:
-        shutil.rmtree(workdir, ignore_errors=True)
     return _result(payload, source)
 
 
@@ -254,6 +253,7 @@ def _run_forked(job, workdir: str) -> tuple:
         code = 70
         try:
             os.close(r)
+            _child_signals()
             os.chdir(workdir)
             with contextlib.suppress(Exception):
                 import faulthandler
@@ -288,6 +288,20 @@ def _run_forked(job, workdir: str) -> tuple:
     if code != 0 or not data:
         return ("failed", f"child exit status {code}")
     return pickle.loads(data)
+
+
+def _child_signals() -> None:  # pragma: no cover - runs in the forked child
+    """In the forked child: SIGTERM and SIGINT end it at once (not the parent's handlers, which
+    raise between bytecodes only), and on Linux it is killed when its parent dies, so that a
+    parent killed outright leaves no tetrahedraliser running on."""
+    for sig in (signal.SIGTERM, signal.SIGINT):
+        with contextlib.suppress(OSError, ValueError):
+            signal.signal(sig, signal.SIG_DFL)
+    if sys.platform.startswith("linux"):
+        with contextlib.suppress(Exception):
+            import ctypes
+
+            ctypes.CDLL(None, use_errno=True).prctl(1, int(signal.SIGKILL))  # PR_SET_PDEATHSIG = 1
 
 
 def _run_spawned(job, workdir: str) -> tuple:

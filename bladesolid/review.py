@@ -88,7 +88,7 @@ def compare_job(job, transform=None, reference_units=None, progress=None):
     """
     from . import api, compare
     from .io import read_mesh
-    from .job import hub_frame_of
+    from .job import check_against_blade, hub_frame_of
 
     if job.reference is None:
         raise InputError(job.source, "no reference blade: give --reference MESH (or the job key 'reference')")
@@ -98,7 +98,8 @@ def compare_job(job, transform=None, reference_units=None, progress=None):
     lumped = tuple(api.LumpedMass(n, m, np.asarray(p, float)) for n, m, p in job.lumped)
     reference = api.load_blade(job.reference, reference_units or job.units, list(job.densities), lumped=lumped,
                                frame=hub_frame_of(job), reference_radius_m=job.reference_radius_m,
-                               reference_fraction=job.reference_fraction, elements=False, progress=progress)
+                               reference_fraction=job.reference_fraction, elements=False, progress=progress,
+                               check=lambda b: check_against_blade(job, b))
     repaired = read_mesh(job.mesh, job.units)
     op = job.operating_points[0]
     result = compare.compare_blade(reference, [(b.vertices, b.faces) for b in repaired.bodies], op.rpm,
@@ -292,9 +293,9 @@ def counterweight_section(blade, job, op0):
 
 def _png(fn, *args, **kw) -> bytes:
     """Call a plotting function that writes a PNG path; return the bytes (temp file)."""
-    import tempfile
+    from .safefile import temp_folder
 
-    with tempfile.TemporaryDirectory() as d:
+    with temp_folder() as d:
         p = os.path.join(d, "x.png")
         fn(*args, p, **kw)
         with open(p, "rb") as fh:
@@ -393,9 +394,9 @@ def write_review(rv: Review, folder, force: bool = False, progress=None, with_vi
 
 
 def _vtu_bytes(views, grid) -> bytes:
-    import tempfile
+    from .safefile import temp_folder
 
-    with tempfile.TemporaryDirectory() as d:
+    with temp_folder() as d:
         p = os.path.join(d, "elements.vtu")
         views.write_vtu(grid, p, force=True)
         with open(p, "rb") as fh:

@@ -143,8 +143,11 @@ def parse_quantity(text, si_unit: str, source: str, what: str, signed: bool = Fa
 
 
 def parse_density(text, source: str = "density") -> float:
-    """Density in kg/m³ from a quantity with its unit or a bare number in kg/m³."""
-    return parse_quantity(text, "kg/m^3", source, "density")
+    """Density in kg/m³ from a quantity with its unit or a bare number in kg/m³, within the
+    bounds of :data:`bladesolid.bounds.DENSITY_LIMITS_KG_M3`."""
+    from .bounds import check_density
+
+    return check_density(parse_quantity(text, "kg/m^3", source, "density"), source)
 
 
 def parse_mass(text, source: str) -> float:

@@ -18,7 +18,7 @@ import numpy as np
 from ..errors import InputError
 from ..job import require_operating_points
 from . import printing
-from .options import UsageError, check_outputs, job_of, job_keys
+from .options import UsageError, check_output_folder, check_outputs, job_of, job_keys
 
 __all__ = ["cmd_batch", "cmd_check", "cmd_compare", "cmd_demo", "cmd_loads", "cmd_mass", "cmd_match",
            "cmd_materials", "cmd_span", "cmd_view"]
@@ -42,7 +42,7 @@ def cmd_mass(args) -> int:
     """Mass, CG, inertia tensors and static moment."""
     from .. import report
 
-    check_outputs(args.force, args.json)
+    check_outputs(args.force, ("--json", args.json))
     _, blade, err = _blade(args, elements=args.check_elements, speed=False)
     props = blade.mass_properties()
     if not props.surface_check_ok:
@@ -60,7 +60,10 @@ def cmd_loads(args) -> int:
     from .. import api, report
     from ..review import loads_report
 
-    check_outputs(args.force, args.json, args.csv, args.plot, args.rpm_csv, args.rpm_plot)
+    check_outputs(args.force, ("--json", args.json), ("--csv", args.csv), ("--plot", args.plot),
+                  ("--rpm-csv", args.rpm_csv), ("--rpm-plot", args.rpm_plot))
+    if (args.rpm_csv or args.rpm_plot) and job_of(args).rpm_sweep is None:  # before any work
+        raise InputError("--rpm-sweep", "give the speed range (--rpm-sweep FROM:TO:STEP) for --rpm-csv / --rpm-plot")
     job, blade, _ = _blade(args, elements=False)
     ops = api.loads_for_job(blade, job)
     data = loads_report(blade, job, ops)
@@ -97,6 +100,7 @@ def cmd_check(args) -> int:
 
     if not str(args.job).lower().endswith(".toml"):
         raise InputError(args.job, "check takes a job file (.toml); see `bladesolid demo` for an example")
+    check_output_folder("--out", args.out, args.force)
     job = load_job(args.job, job_keys(args))
     err = printing.console(stderr=True)
     show, prog = printing.stage_progress(err)
@@ -122,9 +126,8 @@ def cmd_check(args) -> int:
 def cmd_demo(args) -> int:
     """Write the demo blade, its jobs and limits into DIR and run `check` on the demo job."""
     from ..demo import write_demo
-    from ..safefile import check_new_folder
 
-    check_new_folder(args.dir, args.force)
+    check_output_folder(args.dir, args.dir, args.force)
     paths = write_demo(args.dir)
     code = cmd_check(argparse.Namespace(job=paths["job"], out=os.path.join(args.dir, "review"), force=True,
                                         us=args.us))
@@ -139,10 +142,11 @@ def cmd_demo(args) -> int:
 def cmd_view(args) -> int:
     """Open an interactive 3-D window of one per-element field (needs a display)."""
     from .. import fields, views
+    from ..display import display_problem
 
-    if not views.has_display():
-        raise InputError("view", "no display to open a window on (DISPLAY is not set); the PNG renders of "
-                                 "`bladesolid check` show the same fields")
+    problem = display_problem()  # before any work: a display that does not answer opens no window
+    if problem:
+        raise InputError("view", f"{problem}; the PNG renders of `bladesolid check` show the same fields")
     job, blade, _ = _blade(args, elements=True)
     op = job.operating_points[0]
     f = blade.fields(op.rpm, op.blade_angle_deg, op.pitch_change_deg)
@@ -163,7 +167,7 @@ def cmd_span(args) -> int:
     from .. import report
     from ..span import SPAN_NOTE, plot_span, spanwise_rows
 
-    check_outputs(args.force, args.json, args.csv, args.plot)
+    check_outputs(args.force, ("--json", args.json), ("--csv", args.csv), ("--plot", args.plot))
     job, blade, _ = _blade(args, elements=True)
     op = job.operating_points[0]
     table = blade.span(op.rpm, op.blade_angle_deg, op.pitch_change_deg, stations=job.stations,
@@ -186,7 +190,7 @@ def cmd_compare(args) -> int:
     from .. import compare, report
     from ..review import compare_job
 
-    check_outputs(args.force, args.json, args.deviation_png)
+    check_outputs(args.force, ("--json", args.json), ("--deviation-png", args.deviation_png))
     job = job_of(args)
     if job.reference is None:
         raise InputError("--reference", "compare needs the reference (nominal) blade: --reference MESH")
@@ -219,9 +223,13 @@ def cmd_match(args) -> int:
     """Assign the blades of a set to hub positions for the smallest static imbalance."""
     from .. import compare, report
 
-    check_outputs(args.force, args.json, args.plot)
+    check_outputs(args.force, ("--json", args.json), ("--plot", args.plot))
     if args.rpm is not None and not (math.isfinite(args.rpm) and args.rpm >= 0):
         raise InputError("--rpm", f"must be a non-negative number, got {args.rpm}")
+    if args.rpm is not None:
+        from ..bounds import check_rpm
+
+        check_rpm(args.rpm, "--rpm")
     blades = [compare.read_set_report(p) for p in args.reports]
     result, rpm, warnings = compare.match_set(blades, rpm=args.rpm)
     section = compare.match_section(result, blades, rpm, warnings)
@@ -250,10 +258,21 @@ def cmd_batch(args) -> int:
         raise InputError("--workers", f"must be 0 (run in this process) or more, got {args.workers}")
     if args.workers is not None and args.scheduler:
         raise UsageError("bladesolid batch: give either --workers (this machine) or --scheduler (a cluster), not both")
+    from ..safefile import probe_writable
+
+    out_folder = os.path.abspath(args.out)
+    if os.path.exists(out_folder) and not os.path.isdir(out_folder):
+        raise InputError("--out", f"{args.out} exists and is not a folder")
+    target = out_folder if os.path.isdir(out_folder) else os.path.dirname(out_folder)
+    if not os.path.isdir(target):
+        raise InputError("--out", f"{args.out}: the folder {target} does not exist")
+    problem = probe_writable(target)  # before any work (existing results are refused job by job, later)
+    if problem:
+        raise InputError("--out", f"{args.out} cannot be written: {target} is not writable ({problem})")
     jobs = batch.collect_jobs(args.inputs)
-    err = printing.console(stderr=True)
+    err = printing.live_console()  # a live bar on a terminal (it leaves nothing behind), else nothing
     shown = Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(), TimeElapsedColumn(),
-                     TimeRemainingColumn(), console=err, disable=not err.is_terminal)
+                     TimeRemainingColumn(), console=err, disable=not err.is_terminal, transient=True)
     task = shown.add_task(f"{args.command} of {len(jobs)} blades", total=len(jobs))
 
     def on_done(row, done, total):
@@ -265,6 +284,10 @@ def cmd_batch(args) -> int:
         result = batch.run_batch(jobs, args.out, command=args.command, force=args.force, scheduler=args.scheduler,
                                  workers=args.workers, on_done=on_done)
     printing.print_batch(printing.console(), result, args.command, args.out)
-    for r in result.failures:
-        print(f"bladesolid: error: {r['reason']}", file=sys.stderr)
+    failures = result.failures
+    if len(failures) == 1:
+        print(f"bladesolid: error: {failures[0]['reason']}", file=sys.stderr)
+    elif failures:  # one line on stderr (docs/CONVENTIONS.md §7); every reason is in the table and summary
+        print(f"bladesolid: error: {len(failures)} of {len(result.rows)} jobs failed (each reason is listed above "
+              f"and in {result.summary_csv}); the first: {failures[0]['reason']}", file=sys.stderr)
     return result.exit_status

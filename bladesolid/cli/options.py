@@ -7,7 +7,8 @@ import re
 
 from ..errors import InputError
 
-__all__ = ["PARAMETER_FLAGS", "UsageError", "check_outputs", "command_line_message", "job_keys", "job_of"]
+__all__ = ["OUTPUT_EXTENSIONS", "PARAMETER_FLAGS", "UsageError", "check_output_folder", "check_outputs",
+           "command_line_message", "job_keys", "job_of"]
 
 
 class UsageError(Exception):
@@ -24,6 +25,9 @@ PARAMETER_FLAGS = {
     "unit": "--units",
     "lo_deg:hi_deg:step_deg": "--sweep",
     "command": "--command",
+    "rpm": "--rpm",
+    "target_elements": "--elements",
+    "max_element_volume_m3": "--element-size",
 }
 _NAMED_IN_TEXT = re.compile(r"\b(" + "|".join(re.escape(k) for k in PARAMETER_FLAGS if "_" in k) + r")\b")
 
@@ -88,15 +92,60 @@ def job_of(args):
     return build_job({}, "command line", ".", flags)
 
 
-def check_outputs(force: bool, *paths) -> None:
-    """Refuse, before any work, outputs that exist (without --force) or that name the same file twice."""
-    from ..report import check_new_output
+#: The extension each output flag's file must have: what is written there (docs/CONVENTIONS.md §7).
+OUTPUT_EXTENSIONS = {
+    "--json": (".json", "a JSON report"),
+    "--csv": (".csv", "a CSV table"),
+    "--rpm-csv": (".csv", "a CSV table"),
+    "--plot": (".png", "a PNG plot"),
+    "--rpm-plot": (".png", "a PNG plot"),
+    "--deviation-png": (".png", "a PNG render"),
+    "--vtu": (".vtu", "a VTU element file"),
+    "--html": (".html", "an HTML page"),
+}
 
-    given = [p for p in paths if p]
+
+def check_outputs(force: bool, *outputs) -> None:
+    """Refuse, before any work, outputs that exist (without --force), that name the same file
+    twice, whose extension is not what their flag writes, or whose folder cannot be written.
+
+    outputs : ``(flag, path)`` pairs (a bare path is checked without its extension); a None or
+    empty path (the flag not given) is skipped.
+    """
+    from ..report import check_new_output
+    from ..safefile import probe_writable
+
+    pairs = [o if isinstance(o, tuple) else (None, o) for o in outputs]
     seen = {}
-    for p in given:
+    for flag, p in pairs:
+        if not p:
+            continue
+        p = os.fspath(p)
+        if flag in OUTPUT_EXTENSIONS:
+            ext, what = OUTPUT_EXTENSIONS[flag]
+            if os.path.splitext(p)[1].lower() != ext:
+                raise InputError(flag, f"{p} must end in {ext}: {flag} writes {what}")
         key = os.path.realpath(p)
         if key in seen:
             raise InputError(p, f"is given for two outputs ({seen[key]} and this one); give each output its own file")
         seen[key] = p
         check_new_output(p, force)
+        if os.path.isdir(p):
+            raise InputError(p, "is a folder; give a file name")
+        problem = probe_writable(os.path.dirname(os.path.abspath(p)))
+        if problem:
+            raise InputError(flag or p, f"{p} cannot be written: its folder {os.path.dirname(os.path.abspath(p))} "
+                                        f"is not writable ({problem})")
+
+
+def check_output_folder(flag: str, path, force: bool) -> None:
+    """Refuse, before any work, an output folder that exists and is not empty (without
+    --force), that is a file, or whose parent folder does not exist or cannot be written."""
+    from ..safefile import check_new_folder, probe_writable
+
+    p = os.fspath(path)
+    check_new_folder(p, force)
+    parent = os.path.dirname(os.path.abspath(p))
+    problem = probe_writable(parent)
+    if problem:
+        raise InputError(flag, f"{p} cannot be written: its folder {parent} is not writable ({problem})")

@@ -177,6 +177,9 @@ def build_parser() -> argparse.ArgumentParser:
 
     mt = sub.add_parser("materials", help="list the built-in materials")
     mt.set_defaults(func=commands.cmd_materials)
+    for command in sub.choices.values():
+        command.add_argument("--verbose", action="store_true",
+                             help="show every stage and warning as it happens (and the traceback of an internal error)")
     return p
 
 

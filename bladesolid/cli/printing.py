@@ -6,24 +6,129 @@ rich markup escaped); every table ends with the caution.
 
 from __future__ import annotations
 
+import contextlib
+import contextvars
+import io
 import math
+from dataclasses import dataclass, field
 
 import numpy as np
 
 from .. import CAUTION
 
-__all__ = ["STAGE_LABELS", "console", "conv", "esc", "fmt", "print_batch", "print_compare", "print_loads",
-           "print_mass", "print_match", "print_materials", "print_span", "progress", "stage_progress", "warn"]
+__all__ = ["STAGE_LABELS", "console", "conv", "esc", "fmt", "live_console", "print_batch", "print_compare",
+           "print_loads", "print_mass", "print_match", "print_materials", "print_span", "progress", "release",
+           "stage_progress", "stderr_session", "verbose", "warn"]
+
+
+# --- standard error during a command: one line on failure, the warnings only on success -----------
+#
+# docs/CONVENTIONS.md §7: a run that ends in exit status 2 prints exactly one line on stderr. So
+# while a command runs (``stderr_session``, opened by ``main``), what the command prints on
+# stderr through ``console(stderr=True)`` — its warnings — is held back and shown only on the
+# way to success: when the command asks for its stdout console (all its work is done by then)
+# or when it returns. Progress is shown live only where it leaves nothing behind (a transient
+# line on a terminal), or with ``--verbose`` (then warnings are shown live too).
+
+
+@dataclass
+class _Session:
+    verbose: bool
+    buffer: io.StringIO = field(default_factory=io.StringIO)
+    deferred: object = None  # a rich Console writing into buffer
+    status: object = None  # a transient rich Live on a terminal, while a stage is shown
+    notes: list = field(default_factory=list)  # lines added at release (converted warnings)
+
+
+_SESSION: contextvars.ContextVar[_Session | None] = contextvars.ContextVar("bladesolid_stderr", default=None)
+
+
+def _console(stderr: bool, **kw):
+    from rich.console import Console
+
+    con = Console(stderr=stderr, highlight=False, soft_wrap=False, **kw)
+    if not con.is_terminal and "file" not in kw:
+        con = Console(stderr=stderr, highlight=False, soft_wrap=False, width=130, **kw)
+    return con
+
+
+def live_console():
+    """A rich console on the real standard error (progress displays, which must be live)."""
+    return _console(True)
 
 
 def console(stderr=False):
-    """A rich console on stdout (or ``stderr``), 130 columns wide when it is not a terminal."""
-    from rich.console import Console
+    """A rich console on stdout (or ``stderr``), 130 columns wide when it is not a terminal.
 
-    con = Console(stderr=stderr, highlight=False, soft_wrap=False)
-    if not con.is_terminal:
-        con = Console(stderr=stderr, highlight=False, soft_wrap=False, width=130)
-    return con
+    Inside a :func:`stderr_session`, the stderr console holds its lines back until the command
+    succeeds (live with ``--verbose``), and asking for the stdout console first releases them:
+    the results are being printed, so the work is done.
+    """
+    st = _SESSION.get()
+    if st is not None:
+        if stderr:
+            if st.verbose:
+                return live_console()
+            if st.deferred is None:
+                real = live_console()
+                st.deferred = _console(True, file=st.buffer, force_terminal=real.is_terminal,
+                                       width=real.width, color_system=real.color_system)
+            return st.deferred
+        release()
+    return _console(stderr)
+
+
+def _stop_status(st) -> None:
+    if st is not None and st.status is not None:
+        with contextlib.suppress(Exception):
+            st.status.stop()
+        st.status = None
+
+
+def release(note: str | None = None) -> None:
+    """Show the held-back stderr lines now (and ``note``, one more warning line); the command
+    is on its way to success. Outside a session, only ``note`` is printed."""
+    import sys
+
+    st = _SESSION.get()
+    if st is None:
+        if note:
+            live_console().print(f"[yellow]warning:[/yellow] {esc(note)}", soft_wrap=True)
+        return
+    _stop_status(st)
+    if note:
+        st.notes.append(note)
+    text = st.buffer.getvalue()
+    st.buffer.seek(0)
+    st.buffer.truncate()
+    if text:
+        sys.stderr.write(text)
+    if st.notes:
+        live = live_console()
+        for n in st.notes:
+            live.print(f"[yellow]warning:[/yellow] {esc(n)}", soft_wrap=True)
+        st.notes.clear()
+    sys.stderr.flush()
+
+
+@contextlib.contextmanager
+def stderr_session(verbose: bool = False):
+    """Hold back the command's stderr lines until it succeeds (see :func:`console`). On leaving,
+    held-back lines are dropped unless :func:`release` was called (the caller does that on
+    success); a transient progress line is cleared in every case."""
+    st = _Session(verbose=bool(verbose))
+    token = _SESSION.set(st)
+    try:
+        yield st
+    finally:
+        _stop_status(st)
+        _SESSION.reset(token)
+
+
+def verbose() -> bool:
+    """True inside a ``--verbose`` session."""
+    st = _SESSION.get()
+    return bool(st is not None and st.verbose)
 
 
 #: What each stage of loading a blade (api.load_blade) and of a review (review.STAGES) does.
@@ -38,11 +143,28 @@ STAGE_LABELS = {
 
 
 def progress(con):
-    """A callable(stage) that shows the current stage on ``con`` (stderr) when it is a terminal."""
+    """A callable(stage) that shows the current stage: one transient line on a terminal (it is
+    gone when the command ends, however it ends), a line per stage with ``--verbose``, else
+    nothing (``con`` is kept for the signature; the display goes to the real stderr)."""
+    from rich.text import Text
+
+    live = live_console()
+    st = _SESSION.get()
 
     def show(stage):
-        if con.is_terminal:
-            con.print(f"[dim]… {STAGE_LABELS.get(stage, stage)}[/dim]")
+        label = f"… {STAGE_LABELS.get(stage, stage)}"
+        if st is not None and st.verbose:
+            live.print(f"[dim]{esc(label)}[/dim]")
+        elif live.is_terminal and st is not None:
+            from rich.live import Live
+
+            if st.status is None:
+                # no refresh thread: a second thread would disable the parser's memory guard
+                st.status = Live(Text(label, style="dim"), console=live, transient=True, auto_refresh=False)
+                st.status.start()
+            st.status.update(Text(label, style="dim"), refresh=True)
+        elif live.is_terminal:
+            live.print(f"[dim]{esc(label)}[/dim]")
     return show
 
 
@@ -58,7 +180,7 @@ def esc(text) -> str:
 def warn(con, blade):
     """The blade's warnings, one line each."""
     for w in blade.warnings:
-        con.print(f"[yellow]warning:[/yellow] {esc(w)}")
+        con.print(f"[yellow]warning:[/yellow] {esc(w)}", soft_wrap=True)  # one line each, whatever the width
 
 
 def fmt(x, digits=6):
@@ -80,8 +202,9 @@ def conv(us):
 
 
 def stage_progress(con):
-    """A rich progress display of the review stages on ``con`` (stderr; a plain line per stage
-    when it is not a terminal, so logs show where the time went)."""
+    """A progress display of the review stages on the real stderr: a transient bar on a
+    terminal; when it is not a terminal, a plain line per stage with ``--verbose`` (so logs show
+    where the time went), else nothing. ``con`` is kept for the signature."""
     import time
 
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
@@ -89,11 +212,14 @@ def stage_progress(con):
     from ..review import STAGES
 
     labels = STAGE_LABELS
+    con = live_console()  # progress is live or nothing, never held back with the warnings
     if not con.is_terminal:
         t0 = time.perf_counter()
+        shown = verbose() or _SESSION.get() is None
 
         def plain(stage, i, n):
-            con.print(f"[{time.perf_counter() - t0:6.1f} s] {labels.get(stage, stage)}")
+            if shown:  # log lines of the stages only with --verbose (exit 2 prints one line)
+                con.print(f"[{time.perf_counter() - t0:6.1f} s] {labels.get(stage, stage)}")
         return plain, None
     prog = Progress(TextColumn("{task.description}"), BarColumn(), TextColumn("{task.completed}/{task.total}"),
                     TimeElapsedColumn(), console=con, transient=True)

@@ -120,6 +120,8 @@ def _stl_kind(source: str, head: bytes, size: int) -> bool:
 def _read_binary_stl(source: str, size: int):
     """Corner coordinates of a binary STL whose size matches its header: (3n, 3), (n, 3)."""
     n = (size - _STL_HEADER) // _STL_RECORD
+    if n:
+        _refuse_all_degenerate(source, n)
     try:
         with open(source, "rb") as fh:
             fh.seek(_STL_HEADER)
@@ -134,6 +136,35 @@ def _read_binary_stl(source: str, size: int):
         vertices = rec["v"].reshape(-1, 3).astype(np.float64)
     faces = np.arange(3 * n, dtype=np.int64).reshape(-1, 3)
     return vertices, faces
+
+
+#: A binary STL record with its corners as opaque 12-byte values (compared bit for bit).
+_STL_CORNERS = np.dtype([("normal", "V12"), ("a", "V12"), ("b", "V12"), ("c", "V12"), ("attr", "V2")])
+
+
+def _refuse_all_degenerate(source: str, n: int) -> None:
+    """Refuse, before the file is read into memory, a binary STL in which fewer than four of
+    its ``n`` triangles have three distinct corners (a closed surface needs at least four, the
+    tetrahedron): a file of zeros, or of one point repeated, however large. The file is mapped,
+    not read, and scanned in blocks until four good triangles are seen (the first block, for
+    any real surface)."""
+    try:
+        mm = np.memmap(source, dtype=_STL_CORNERS, mode="r", offset=_STL_HEADER, shape=(n,))
+    except (OSError, ValueError):
+        return  # not mappable here: the ordinary read and checks follow
+    distinct = 0
+    block = 1 << 20
+    try:
+        for i in range(0, n, block):
+            c = mm[i:i + block]
+            a, b, d = c["a"], c["b"], c["c"]
+            distinct += int(len(c) - np.count_nonzero((a == b) | (b == d) | (a == d)))
+            if distinct >= 4:
+                return
+    finally:
+        del mm
+    raise InputError(source, f"only {distinct} of its {n:,} triangles have three distinct corners; "
+                             "a closed surface needs at least 4 (is the file blank or zero-filled?)")
 
 
 def write_surface(path, vertices, faces) -> None:
