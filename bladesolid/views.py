@@ -473,13 +473,13 @@ def has_display() -> bool:
     return bool(os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"))
 
 
-def png_bytes(image) -> bytes:
-    """An (h, w, 3|4) uint8 image as PNG bytes, marked :data:`PICTURE_DPI`."""
+def png_bytes(image, dpi: float = PICTURE_DPI) -> bytes:
+    """An (h, w, 3|4) uint8 image as PNG bytes, marked ``dpi`` (default :data:`PICTURE_DPI`)."""
     from PIL import Image
 
     buf = io.BytesIO()
-    Image.fromarray(np.asarray(image)).save(buf, format="png", compress_level=PNG_COMPRESS_LEVEL,
-                                           dpi=(PICTURE_DPI, PICTURE_DPI))
+    Image.fromarray(np.ascontiguousarray(image)).save(buf, format="png", compress_level=PNG_COMPRESS_LEVEL,
+                                                      dpi=(dpi, dpi))
     return buf.getvalue()
 
 
@@ -1095,17 +1095,29 @@ def _style_axes(ax):
 
 
 def _save_figure(fig, path, force, above: str = ""):
-    """Add the caution footer (and ``above`` it, a note) and save: a PNG (or the format of
-    the path's extension) at the figure's resolution, or PNG bytes into a binary file object."""
+    """Add the caution footer (and ``above`` it, a note) and save the figure: a PNG (or the
+    format of the path's extension), or PNG bytes into a binary file object.
+
+    A PNG is drawn once: one draw lays the figure out and renders it, and the rendered
+    buffer is encoded directly (a plain ``savefig`` with a layout engine draws twice).
+    """
     add_caution(fig, above=above)
-    if hasattr(path, "write"):
-        fig.savefig(path, format="png", bbox_inches="tight", pil_kwargs={"compress_level": PNG_COMPRESS_LEVEL})
-        return path
-    fmt = os.path.splitext(os.fspath(path))[1].lstrip(".").lower() or "png"
-    extra = {"pil_kwargs": {"compress_level": PNG_COMPRESS_LEVEL}} if fmt == "png" else {}
-    with staged_file(path, force) as tmp:
-        fig.savefig(tmp, format=fmt, bbox_inches="tight", **extra)
-    return os.fspath(path)
+    fmt = "png" if hasattr(path, "write") else os.path.splitext(os.fspath(path))[1].lstrip(".").lower() or "png"
+    if fmt != "png":
+        with staged_file(path, force) as tmp:
+            fig.savefig(tmp, format=fmt)
+        return os.fspath(path)
+    return _deliver(figure_png(fig), path, force)
+
+
+def figure_png(fig) -> bytes:
+    """A matplotlib figure drawn once (Agg, its layout engine included) as PNG bytes."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    canvas = FigureCanvasAgg(fig)
+    canvas.draw()
+    rgba = np.asarray(canvas.buffer_rgba())
+    return png_bytes(rgba[..., :3] if np.all(rgba[..., 3] == 255) else rgba, dpi=fig.dpi)
 
 
 def zero_crossings(x, y) -> list[float]:
