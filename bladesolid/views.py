@@ -2,7 +2,11 @@
 
 Renders are made off-screen (``pv.Plotter(off_screen=True)``) and every file is written to a
 temporary file in the same folder and renamed into place; an existing file is only replaced
-with ``force=True``.
+with ``force=True``. A series of renders shares one plotter (:class:`RenderSession`), and each
+picture is drawn once and encoded straight from the rendered image.
+
+Every picture carries the safety caution as a footer (:func:`add_caution`: matplotlib figures,
+pyvista renders and interactive windows alike), legible at the picture's saved size.
 
 Colour maps (chosen on merit):
 
