@@ -17,8 +17,8 @@ import numpy as np
 from . import CAUTION, __version__
 from .safefile import atomic_write_bytes, atomic_write_text, check_new_output, staged_folder  # noqa: F401
 
-__all__ = ["LOAD_FIGURES", "SCHEMA", "atomic_write_bytes", "atomic_write_text", "base_report", "blade_angle_section",
-           "check_new_output", "compare_report", "csv_text", "dumps", "header", "jsonable", "load_figures",
+__all__ = ["CSV_COMMENT", "LOAD_FIGURES", "SCHEMA", "atomic_write_bytes", "atomic_write_text", "base_report", "blade_angle_section",
+           "check_new_output", "compare_report", "csv_rows", "csv_text", "dumps", "header", "jsonable", "load_figures",
            "mass_report", "mass_section", "match_report", "operating_point_row", "review_html", "span_report",
            "staged_folder", "sweep_rows"]
 
@@ -247,17 +247,47 @@ def match_report(reports, section: dict, warnings) -> dict:
     return header(input={"reports": list(reports)}, warnings=list(warnings), match=section)
 
 
-def csv_text(rows: list[dict], columns: list[str] | None = None) -> str:
-    """CSV text of a list of flat dicts (the column names carry the units)."""
+#: How every CSV table starts: the caution as one comment line, then the header row.
+CSV_COMMENT = "# "
+
+
+def csv_text(rows: list[dict], columns: list[str] | None = None, *, caution: bool = True) -> str:
+    """CSV text of a list of flat dicts (the column names carry the units).
+
+    The first line is the caution as a comment, ``# `` and the text (no quoting), then the
+    header row and the data. Readers skip it with ``pandas.read_csv(path, comment="#")``
+    (or ``skiprows=1``), ``numpy.genfromtxt(path, delimiter=",", names=True, skip_header=1)``,
+    or in Python ``csv.DictReader(line for line in fh if not line.startswith("#"))``
+    (:func:`csv_rows`). ``caution=False`` leaves the line out.
+
+    >>> print(csv_text([{"rpm": 2500, "ctm_Nm": -236.3}], caution=False), end="")
+    rpm,ctm_Nm
+    2500,-236.3
+    >>> csv_text([{"rpm": 2500}]).splitlines()[0].startswith("# Results are engineering estimates")
+    True
+    """
+    head = f"{CSV_COMMENT}{CAUTION}\n" if caution else ""
     buf = io.StringIO()
+    buf.write(head)
     if not rows:
-        return ""
+        return buf.getvalue()
     cols = columns or list(rows[0].keys())
     w = csv.DictWriter(buf, fieldnames=cols, extrasaction="ignore", lineterminator="\n")
     w.writeheader()
     for r in rows:
         w.writerow({k: ("" if r.get(k) is None else r.get(k)) for k in cols})
     return buf.getvalue()
+
+
+def csv_rows(text: str) -> list[dict]:
+    """The rows (dicts of strings) of a CSV table written by :func:`csv_text`; comment lines
+    (starting with ``#``) are skipped.
+
+    >>> csv_rows(csv_text([{"rpm": 2500, "ctm_Nm": -236.3}]))
+    [{'rpm': '2500', 'ctm_Nm': '-236.3'}]
+    """
+    lines = [ln for ln in text.splitlines(keepends=True) if not ln.startswith("#")]
+    return list(csv.DictReader(lines))
 
 
 # --- HTML ---------------------------------------------------------------------------------
@@ -275,6 +305,7 @@ th,td{padding:3px 10px;border-bottom:1px solid #e6e8e3;text-align:right;white-sp
 th:first-child,td:first-child{text-align:left}
 th{background:#eef0ea;font-weight:600}
 .caution{background:#fff6dc;border:1px solid #e2c46b;padding:10px 14px;border-radius:6px;font-size:13px}
+footer.caution{max-width:1116px;margin:0 auto 32px}
 .warn{color:#8a4b00}
 .verdict-ok{color:#176b3a;font-weight:600}.verdict-bad{color:#a3221b;font-weight:600}
 figure{margin:8px 0;display:inline-block;vertical-align:top}
@@ -333,7 +364,7 @@ def review_html(data: dict, images: dict | None = None, files: list | None = Non
         f"{_e(d.get('tool', {}).get('version', ''))} · mesh {_e(inp.get('mesh', ''))} "
         f"({_e(inp.get('units', ''))}) · report schema {_e(d.get('schema', ''))}</p></header><main>"
     )
-    parts.append(f'<div class="caution"><b>Caution.</b> {_e(d.get("caution", ""))}</div>')
+    parts.append(f'<div class="caution"><b>Caution.</b> {_e(d.get("caution") or CAUTION)}</div>')
     if d.get("warnings"):
         parts.append("<section><h2>Warnings</h2><ul>" + "".join(f'<li class="warn">{_e(w)}</li>' for w in d["warnings"]) + "</ul></section>")
 
@@ -461,6 +492,7 @@ def review_html(data: dict, images: dict | None = None, files: list | None = Non
     if files:
         parts.append("<section><h2>Files in this folder</h2><ul>" + "".join(f"<li><code>{_e(f)}</code></li>" for f in files) + "</ul></section>")
     parts.append("</main>")
+    parts.append(f'<footer class="caution"><b>Caution.</b> {_e(d.get("caution") or CAUTION)}</footer>')
     return (
         "<!DOCTYPE html><html lang=\"en\"><head><meta charset=\"utf-8\">"
         f"<title>{_e(title)}</title><style>{_CSS}</style></head><body>" + "".join(parts) + "</body></html>\n"

@@ -292,7 +292,17 @@ def counterweight_section(blade, job, op0):
 
 
 def _png(fn, *args, **kw) -> bytes:
-    """Call a plotting function that writes a PNG path; return the bytes (temp file)."""
+    """Call a picture function of :mod:`bladesolid.views` with a memory file in place of its
+    path; return the PNG bytes."""
+    import io
+
+    buf = io.BytesIO()
+    fn(*args, buf, **kw)
+    return buf.getvalue()
+
+
+def _png_via_file(fn, *args, **kw) -> bytes:
+    """Call a plotting function that only writes to a path; return the bytes (temp file)."""
     from .safefile import temp_folder
 
     with temp_folder() as d:
@@ -303,8 +313,16 @@ def _png(fn, *args, **kw) -> bytes:
 
 
 def write_review(rv: Review, folder, force: bool = False, progress=None, with_views: bool = True) -> list[str]:
-    """Write the review folder (staged: all or nothing). Returns the file names written."""
+    """Write the review folder (staged: all or nothing). Returns the file names written.
+
+    Every CSV table starts with a ``# `` caution line, every picture carries the caution
+    footer, the VTU holds it in its field data, the HTML page shows it at the top and the
+    bottom, and the folder gets a ``CAUTION.txt`` (:func:`bladesolid.safefile.staged_folder`).
+    The renders share one off-screen plotter (:class:`bladesolid.views.RenderSession`) and
+    each is drawn once.
+    """
     from . import report
+    from .safefile import CAUTION_FILE
 
     clock = _Clock(progress)
     data = rv.report
@@ -328,61 +346,13 @@ def write_review(rv: Review, folder, force: bool = False, progress=None, with_vi
         add_text("hot_spots.csv", report.csv_text(data["hot_spots"]["regions"]))
 
     if with_views:
-        from . import span as span_mod
         from . import views
 
-        betas, ctm, k = rv.sweep
-        op0 = rv.ops[0]
-        title = f"{rv.blade.name} — CTM at {op0.rpm:g} rpm"
-        files["ctm_sweep.png"] = _png(views.plot_ctm_sweep, betas, ctm, k, op0.blade_angle_deg, title=title)
-        images[f"CTM and centrifugal pitch stiffness over blade angle at {op0.rpm:g} rpm"] = files["ctm_sweep.png"]
-        if rv.rpm_sweep:
-            r = np.array([x["rpm"] for x in rv.rpm_sweep])
-            files["rpm_sweep.png"] = _png(views.plot_rpm_sweep, r, np.array([x["ctm_Nm"] for x in rv.rpm_sweep]),
-                                          np.array([x["radial_pull_N"] for x in rv.rpm_sweep]))
-            images["CTM and radial pull over speed"] = files["rpm_sweep.png"]
-        if rv.span is not None:
-            files["spanwise.png"] = _png(span_mod.plot_span, rv.span)
-            images["Spanwise centrifugal tension, stress, CTM and area"] = files["spanwise.png"]
-        if rv.hot_spots is not None:
-            files["hot_spots.png"] = _png(views.plot_hot_spots, rv.hot_spots, title=f"Hot spots — {rv.blade.name}")
-            images["Hot spots: share of CTM, radial pull and mass by region"] = files["hot_spots.png"]
-        if rv.fields is not None:
-            grid = views.element_grid(rv.blade, rv.fields, rv.hot_spots)
-            for fname, label in (("ctm_Nm", "CTM contribution"), ("radial_pull_N", "radial pull contribution"),
-                                 ("mass_kg", "mass")):
-                for view in ("planform", "tip"):
-                    key = f"render_{fname.split('_')[0]}_{view}.png"
-                    files[key] = _png(views.render_field, rv.blade, rv.fields, fname, view=view, grid=grid,
-                                      hotspots=rv.hot_spots)
-                    images[f"{label} per element, view from the {view}"] = files[key]
-            files["render_ctm_share.png"] = _png(views.render_field, rv.blade, rv.fields, "ctm_share_band",
-                                                 view="planform", grid=grid, hotspots=rv.hot_spots)
-            images["smallest element sets carrying 50 / 80 / 95 % of the CTM"] = files["render_ctm_share.png"]
-            files["render_regions.png"] = _png(views.render_field, rv.blade, rv.fields, "region", view="iso",
-                                               grid=grid, hotspots=rv.hot_spots)
-            images["hot-spot regions (leading edge, trailing edge, tip, shank, mid-chord)"] = files["render_regions.png"]
-            tip = rv.blade.tip_radius_m
-            stations = sorted({round(f * tip, 6) for f in (0.4, 0.6)} | {round(rv.blade.reference_radius_m, 6)}
-                              | {round(0.9 * tip, 6)})
-            files["render_clipped.png"] = _png(views.render_clipped, rv.blade, rv.fields, "ctm_Nm", stations,
-                                               grid=grid, hotspots=rv.hot_spots)
-            images["CTM contribution inside the blade, cut at stations (reference station included)"] = files["render_clipped.png"]
-            files["elements.vtu"] = _vtu_bytes(views, grid)
-        if data.get("match"):
-            files["blade_set.png"] = _png(views.plot_match, report.jsonable(data["match"]),
-                                          title=f"Blade set — {rv.blade.name}")
-            images["the blade set on the hub: best and worst assignment"] = files["blade_set.png"]
-        if rv.comparison is not None:
-            d = rv.comparison.deviation
-            files["deviation.png"] = _png(views.render_deviation, d.vertices, d.faces, d.values,
-                                          frame=rv.reference.frame, title=f"Deviation — {rv.blade.name}")
-            images["surface deviation of this blade from the reference (after registration)"] = files["deviation.png"]
-            data["comparison"]["deviation_png"] = "deviation.png"
+        _write_pictures(rv, data, files, images, views)
 
     clock.start("report")
     data["timings_s"] = {**rv.timings_s, **{f"write_{k}": v for k, v in clock.timings.items()}}
-    names = sorted(list(files) + ["report.json", "report.html"])
+    names = sorted(list(files) + ["report.json", "report.html", CAUTION_FILE])
     add_text("report.json", report.dumps(data))
     add_text("report.html", report.review_html(data, images, names))
     with report.staged_folder(folder, force) as tmp:
@@ -393,14 +363,90 @@ def write_review(rv: Review, folder, force: bool = False, progress=None, with_vi
     return names
 
 
-def _vtu_bytes(views, grid) -> bytes:
-    from .safefile import temp_folder
+def _write_pictures(rv: Review, data: dict, files: dict, images: dict, views) -> None:
+    """The plots, renders and element file of a review into ``files`` (name: bytes) and the
+    pictures shown in the HTML page into ``images`` (caption: the same bytes), in page order.
 
-    with temp_folder() as d:
-        p = os.path.join(d, "elements.vtu")
-        views.write_vtu(grid, p, force=True)
-        with open(p, "rb") as fh:
-            return fh.read()
+    The matplotlib plots are drawn in a second thread while this one renders the 3-D views:
+    VTK lets go of the interpreter while it draws, so the two overlap on a machine with two
+    cores (the OpenGL context stays in this thread).
+    """
+    from concurrent.futures import ThreadPoolExecutor
+
+    with ThreadPoolExecutor(max_workers=1, thread_name_prefix="bladesolid-plots") as pool:
+        plots = pool.submit(_plots, rv, data, views)
+        renders = _renders(rv, data, views)
+        drawn = plots.result()
+    deviation = [r for r in renders if r[0] == "deviation.png"]
+    renders = [r for r in renders if r[0] != "deviation.png"]
+    for name, caption, blob in drawn[:-1] + renders + drawn[-1:] + deviation:
+        if blob is None:
+            continue
+        files[name] = blob
+        if caption:
+            images[caption] = blob
+
+
+def _plots(rv: Review, data: dict, views) -> list[tuple]:
+    """(file name, caption, PNG bytes) of the matplotlib plots; the blade-set picture last."""
+    from . import report
+    from . import span as span_mod
+
+    out = []
+    betas, ctm, k = rv.sweep
+    op0 = rv.ops[0]
+    title = f"{rv.blade.name} — CTM at {op0.rpm:g} rpm"
+    out.append(("ctm_sweep.png", f"CTM and centrifugal pitch stiffness over blade angle at {op0.rpm:g} rpm",
+                _png(views.plot_ctm_sweep, betas, ctm, k, op0.blade_angle_deg, title=title)))
+    if rv.rpm_sweep:
+        r = np.array([x["rpm"] for x in rv.rpm_sweep])
+        out.append(("rpm_sweep.png", "CTM and radial pull over speed",
+                    _png(views.plot_rpm_sweep, r, np.array([x["ctm_Nm"] for x in rv.rpm_sweep]),
+                         np.array([x["radial_pull_N"] for x in rv.rpm_sweep]))))
+    if rv.span is not None:
+        out.append(("spanwise.png", "Spanwise centrifugal tension, stress, CTM and area",
+                    _png_via_file(span_mod.plot_span, rv.span)))
+    if rv.hot_spots is not None:
+        out.append(("hot_spots.png", "Hot spots: share of CTM, radial pull and mass by region",
+                    _png(views.plot_hot_spots, rv.hot_spots, title=f"Hot spots — {rv.blade.name}")))
+    match = None
+    if data.get("match"):
+        match = _png(views.plot_match, report.jsonable(data["match"]), title=f"Blade set — {rv.blade.name}")
+    out.append(("blade_set.png", "the blade set on the hub: best and worst assignment", match))
+    return out
+
+
+def _renders(rv: Review, data: dict, views) -> list[tuple]:
+    """(file name, caption or None, bytes) of the 3-D renders and the element file, drawn in
+    one :class:`bladesolid.views.RenderSession`."""
+    out = []
+    with views.render_session() as session:
+        if rv.fields is not None:
+            grid = views.element_grid(rv.blade, rv.fields, rv.hot_spots)
+            common = dict(grid=grid, hotspots=rv.hot_spots, session=session)
+            for fname, label in (("ctm_Nm", "CTM contribution"), ("radial_pull_N", "radial pull contribution"),
+                                 ("mass_kg", "mass")):
+                for view in ("planform", "tip"):
+                    out.append((f"render_{fname.split('_')[0]}_{view}.png", f"{label} per element, view from the {view}",
+                                _png(views.render_field, rv.blade, rv.fields, fname, view=view, **common)))
+            out.append(("render_ctm_share.png", "smallest element sets carrying 50 / 80 / 95 % of the CTM",
+                        _png(views.render_field, rv.blade, rv.fields, "ctm_share_band", view="planform", **common)))
+            out.append(("render_regions.png", "hot-spot regions (leading edge, trailing edge, tip, shank, mid-chord)",
+                        _png(views.render_field, rv.blade, rv.fields, "region", view="iso", **common)))
+            tip = rv.blade.tip_radius_m
+            stations = sorted({round(f * tip, 6) for f in (0.4, 0.6)} | {round(rv.blade.reference_radius_m, 6)}
+                              | {round(0.9 * tip, 6)})
+            out.append(("render_clipped.png",
+                        "CTM contribution inside the blade, cut at stations (reference station included)",
+                        _png(views.render_clipped, rv.blade, rv.fields, "ctm_Nm", stations, **common)))
+            out.append(("elements.vtu", None, views.vtu_bytes(grid)))
+        if rv.comparison is not None:
+            d = rv.comparison.deviation
+            out.append(("deviation.png", "surface deviation of this blade from the reference (after registration)",
+                        _png(views.render_deviation, d.vertices, d.faces, d.values, frame=rv.reference.frame,
+                             title=f"Deviation — {rv.blade.name}", session=session)))
+            data["comparison"]["deviation_png"] = "deviation.png"
+    return out
 
 
 def check(job, folder, force: bool = False, progress=None) -> Review:

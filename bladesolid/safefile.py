@@ -3,7 +3,8 @@
 Every writer goes through a temporary file in the destination folder and an atomic rename,
 so an interrupted run (Ctrl-C, a full disk) leaves no half-written file and no temporary
 file behind; an existing output is only replaced with ``force``. Used by every stage that
-writes (views and reports alike).
+writes (views and reports alike). Every folder written whole (:func:`staged_folder`) holds a
+``CAUTION.txt`` with the safety caution.
 """
 
 from __future__ import annotations
@@ -15,10 +16,11 @@ import shutil
 import socket
 import tempfile
 
+from . import CAUTION, __version__
 from .errors import InputError, OutputExistsError
 
 __all__ = ["STALE_AFTER_S", "TEMP_PREFIX", "atomic_write_bytes", "atomic_write_text", "check_new_folder",
-           "check_new_output", "owner_of", "probe_writable", "staged_file", "staged_folder", "sweep_stale",
+           "check_new_output", "owner_of", "CAUTION_FILE", "caution_text", "write_caution_file", "probe_writable", "staged_file", "staged_folder", "sweep_stale",
            "temp_folder", "temp_prefix"]
 
 # --- temporary names: one prefix, the owner in the name, stale ones swept ---------------------------
@@ -137,6 +139,21 @@ def probe_writable(folder) -> str | None:
     return None
 
 
+#: The caution's file in every output folder.
+CAUTION_FILE = "CAUTION.txt"
+
+
+def caution_text() -> str:
+    """The text of ``CAUTION.txt``: the caution, and what wrote the folder."""
+    return f"{CAUTION}\n\nThe files in this folder were written by bladesolid {__version__}.\n"
+
+
+def write_caution_file(folder) -> str:
+    """Write (atomically, replacing any earlier one) ``CAUTION.txt`` into an existing folder;
+    for output folders that are not staged whole. Returns its path."""
+    return atomic_write_text(os.path.join(os.fspath(folder), CAUTION_FILE), caution_text(), force=True)
+
+
 def check_new_output(path, force: bool = False) -> None:
     """Refuse (before any work) an output that exists, unless ``force``; check its folder."""
     p = os.fspath(path)
@@ -211,6 +228,7 @@ def staged_folder(path, force: bool = False):
 
     Yields the temporary folder's path. On any error (or Ctrl-C) the temporary folder is
     removed and nothing appears at ``path``. An existing non-empty ``path`` needs ``force``.
+    The folder gets a ``CAUTION.txt`` (:func:`caution_text`) unless the block wrote its own.
     """
     p = os.path.abspath(os.fspath(path))
     check_new_folder(p, force)
@@ -223,6 +241,10 @@ def staged_folder(path, force: bool = False):
     try:
         os.chmod(tmp, 0o777 & ~_umask())  # an ordinary folder, not mkdtemp's owner-only 0o700
         yield tmp
+        caution = os.path.join(tmp, CAUTION_FILE)
+        if not os.path.exists(caution):
+            with open(caution, "w", encoding="utf-8") as fh:
+                fh.write(caution_text())
         if os.path.isdir(p):
             old = tempfile.mkdtemp(prefix=temp_prefix(hidden=True), suffix=".old", dir=parent)
             os.rmdir(old)

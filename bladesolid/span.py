@@ -601,8 +601,8 @@ def plot_span(table: SpanTable, path, force: bool = False) -> str:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from . import CAUTION
     from .report import atomic_write_bytes
+    from .views import add_caution
 
     r = table.radius_m
     fig, ax = plt.subplots(2, 2, figsize=(10, 7.5), sharex=True)
@@ -629,8 +629,7 @@ def plot_span(table: SpanTable, path, force: bool = False) -> str:
         a.grid(True, lw=0.4, alpha=0.6)
     fig.suptitle(f"{table.name} — {table.rpm:g} rpm, blade angle {table.blade_angle_deg:.2f} deg "
                  f"(centrifugal part only)", fontsize=11)
-    fig.text(0.01, 0.005, CAUTION, fontsize=6, color="0.35", wrap=True, va="bottom")
-    fig.tight_layout(rect=(0, 0.04, 1, 0.96))
+    add_caution(fig)  # the footer, legible, with the layout kept clear of it
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=120)
     plt.close(fig)

@@ -2,7 +2,11 @@
 
 Renders are made off-screen (``pv.Plotter(off_screen=True)``) and every file is written to a
 temporary file in the same folder and renamed into place; an existing file is only replaced
-with ``force=True``.
+with ``force=True``. A series of renders shares one plotter (:class:`RenderSession`), and each
+picture is drawn once and encoded straight from the rendered image.
+
+Every picture carries the safety caution as a footer (:func:`add_caution`: matplotlib figures,
+pyvista renders and interactive windows alike), legible at the picture's saved size.
 
 Colour maps (chosen on merit):
 
@@ -27,16 +31,20 @@ moved by the pitch motion for display only.
 
 from __future__ import annotations
 
+import contextlib
+import functools
+import io
 import math
 import os
 from dataclasses import dataclass
 
 import numpy as np
 
+from . import CAUTION
 from .errors import InputError
 from .fields import REGIONS, ElementFields, HotSpots, hot_spots
 from .frame import HubFrame, hub_frame, pitch_motion
-from .safefile import staged_file
+from .safefile import atomic_write_bytes, staged_file
 
 # --- style -----------------------------------------------------------------------------
 
@@ -48,6 +56,16 @@ SIGNED_CMAP = "PuOr"
 UNSIGNED_CMAP = "cividis"
 DEVIATION_CMAP = "BrBG"
 WINDOW = (1400, 900)
+#: Resolution every picture is made for, written into each PNG: a 1400-px render is 9.3 in
+#: wide, like the 9-in plots.
+PICTURE_DPI = 150
+#: The caution footer's size at that resolution, points. 8 pt is about the smallest text
+#: commonly held legible in print (common practice, no source).
+CAUTION_PT = 8.5
+CAUTION_INK = "#4d4d48"
+#: zlib level of the PNGs: 3 encodes about twice as fast as Pillow's default 6 for files
+#: under a tenth larger (measured on the review's renders).
+PNG_COMPRESS_LEVEL = 3
 
 #: Okabe & Ito (2008), "Color Universal Design" palette, for the regions.
 REGION_COLORS = {
@@ -104,6 +122,150 @@ def _pt(fs: int, factor: float) -> int:
     return max(5, int(round(fs * factor)))
 
 
+# --- the caution on every picture -----------------------------------------------------------
+
+
+def wrap_to_width(text: str, width: float, measure) -> list[str]:
+    """Greedy word wrap: lines of whole words whose ``measure(line)`` fits ``width`` (a word
+    longer than the width gets a line of its own).
+
+    >>> wrap_to_width("one two three four", 9, len)
+    ['one two', 'three', 'four']
+    """
+    lines: list[str] = []
+    for word in text.split():
+        if lines and measure(f"{lines[-1]} {word}") <= width:
+            lines[-1] = f"{lines[-1]} {word}"
+        else:
+            lines.append(word)
+    return lines
+
+
+def caution_px() -> int:
+    """The caution footer's font size in a render, pixels (:data:`CAUTION_PT` at
+    :data:`PICTURE_DPI`, rounded up).
+
+    >>> caution_px()
+    18
+    """
+    return int(math.ceil(CAUTION_PT * PICTURE_DPI / 72.0))
+
+
+_FOOTER_MARGIN_PX = 8
+_FOOTER_LINE_SPACING = 1.25
+
+
+def _footer_text_property(prop):
+    """The footer's font on a ``vtkTextProperty`` (the same for measuring and drawing)."""
+    prop.SetFontFamilyToArial()
+    prop.SetFontSize(caution_px())
+    prop.SetLineSpacing(_FOOTER_LINE_SPACING)
+    prop.SetJustificationToLeft()
+    prop.SetVerticalJustificationToBottom()
+    return prop
+
+
+@functools.lru_cache(maxsize=16)
+def _vtk_caution(width_px: int) -> tuple[str, int]:
+    """(text wrapped to ``width_px``, its height in px) of the caution in a render."""
+    from vtkmodules.vtkRenderingCore import vtkTextProperty, vtkTextRenderer
+    import vtkmodules.vtkRenderingFreeType  # noqa: F401  (registers the text renderer)
+
+    prop = _footer_text_property(vtkTextProperty())
+    renderer = vtkTextRenderer.GetInstance()
+
+    def extent(text):
+        box = [0, 0, 0, 0]
+        renderer.GetBoundingBox(prop, text, box, 72)  # VTK's font sizes are points at 72 dpi: pixels
+        return box[1] - box[0] + 1, box[3] - box[2] + 1
+
+    text = "\n".join(wrap_to_width(CAUTION, width_px - 2 * _FOOTER_MARGIN_PX, lambda t: extent(t)[0]))
+    return text, extent(text)[1]
+
+
+def footer_fraction(window_size) -> float:
+    """Fraction of a render's height, from the bottom, taken by the caution footer."""
+    _, h = _vtk_caution(int(window_size[0]))
+    return (h + 2 * _FOOTER_MARGIN_PX) / float(window_size[1])
+
+
+def _mpl_caution_lines(text: str, width_pt: float, size_pt: float) -> list[str]:
+    from matplotlib.font_manager import FontProperties
+    from matplotlib.textpath import TextToPath
+
+    prop, ttp = FontProperties(size=size_pt), TextToPath()
+    out = []
+    for paragraph in text.split("\n"):
+        out += wrap_to_width(paragraph, width_pt, lambda t: ttp.get_text_width_height_descent(t, prop, ismath=False)[0])
+    return out
+
+
+def add_caution(target, *, above: str = ""):
+    """Put the safety caution (:data:`bladesolid.CAUTION`) on a picture as a footer, legible
+    (:data:`CAUTION_PT` points at :data:`PICTURE_DPI`) and wrapped to the picture's width.
+
+    target : a matplotlib ``Figure`` — the footer goes across the bottom and the figure's
+      layout (its constrained or tight layout engine, else a tight layout made at once, so add
+      the footer last) keeps the axes above it; ``above`` (optional
+      lines, e.g. definitions of what a plot shows) is set just above the footer at 7 pt; or
+      a pyvista ``Plotter`` (off-screen or an interactive window) — a text actor named
+      ``"caution"`` at the bottom left of the active renderer's viewport, which the caller
+      keeps clear (:func:`footer_fraction` of the window height).
+    Returns the matplotlib ``Text`` or the text actor.
+    """
+    if hasattr(target, "savefig"):
+        return _caution_on_figure(target, above)
+    if hasattr(target, "add_text") and hasattr(target, "renderer"):
+        if above:
+            raise ValueError("add_caution: 'above' is for matplotlib figures only")
+        return _caution_on_plotter(target)
+    raise TypeError(f"add_caution: expected a matplotlib Figure or a pyvista Plotter, got {type(target).__name__}")
+
+
+def _caution_on_figure(fig, above: str = ""):
+    from matplotlib.layout_engine import ConstrainedLayoutEngine, TightLayoutEngine
+
+    w_pt, h_pt = fig.get_figwidth() * 72.0, fig.get_figheight() * 72.0
+    margin = 0.015 * w_pt
+    usable = 0.96 * (w_pt - 2 * margin)  # a little slack: hinting makes rendered text a bit wider
+    lines = _mpl_caution_lines(CAUTION, usable, CAUTION_PT)
+    pad = 0.5 * CAUTION_PT
+    height = pad + len(lines) * 1.2 * CAUTION_PT
+    text = fig.text(margin / w_pt, pad / h_pt, "\n".join(lines), fontsize=CAUTION_PT, color=CAUTION_INK,
+                    ha="left", va="bottom", gid="caution")
+    if above:
+        note = _mpl_caution_lines(above, usable, 7.0)
+        fig.text(margin / w_pt, (height + 0.6 * CAUTION_PT) / h_pt, "\n".join(note), fontsize=7.0, color="#55554f",
+                 ha="left", va="bottom", gid="caution-note")
+        height += 0.6 * CAUTION_PT + len(note) * 1.2 * 7.0
+    frac = min((height + pad) / h_pt, 0.5)
+    engine = fig.get_layout_engine()
+    if isinstance(engine, ConstrainedLayoutEngine):
+        engine.set(rect=(0.0, frac, 1.0, 1.0 - frac))
+    elif isinstance(engine, TightLayoutEngine):
+        engine.set(rect=(0.0, frac, 1.0, 1.0))
+    else:
+        # no layout engine: lay the figure out now, once (an engine would make savefig draw
+        # the figure twice); so, for such a figure, the footer is the last thing added
+        fig.tight_layout(rect=(0.0, frac, 1.0, 1.0))
+    return text
+
+
+def _caution_on_plotter(pl):
+    x0, _, x1, _ = pl.renderer.GetViewport()
+    width = int(round((x1 - x0) * pl.window_size[0]))
+    text, _ = _vtk_caution(width)
+    actor = pl.add_text(text, position=(_FOOTER_MARGIN_PX, _FOOTER_MARGIN_PX), font_size=caution_px() / 2.0,
+                        color=CAUTION_INK, name="caution")
+    _footer_text_property(actor.GetTextProperty())  # exactly the measured font (pyvista rounds font_size)
+    return actor
+
+
+def has_caution(pl) -> bool:
+    """True when a pyvista plotter carries the caution footer in one of its renderers."""
+    return any("caution" in r.actors for r in pl.renderers)
+
+
 # --- the element grid ------------------------------------------------------------------
 
 
@@ -120,8 +282,11 @@ def element_grid(blade, fields: ElementFields, hotspots: HotSpots | None = None)
     ``mass_g_per_cm3, radial_pull_N_per_cm3, ctm_Nm_per_cm3`` (per element volume);
     ``ctm_share_band, pull_share_band`` (50/80/95/100); ``region`` (code into
     :data:`bladesolid.fields.REGIONS`); ``chordwise`` (0 trailing edge … 1 leading edge);
-    ``body``. Field data: rpm, blade angles, totals, and one ``region_<code>_<name>`` entry
-    per region holding its code.
+    ``body``. Field data: rpm, blade angles, totals, one ``region_<code>_<name>`` entry per
+    region holding its code, and ``caution``: the safety caution as UTF-8 bytes (``uint8``;
+    ``bytes(grid.field_data["caution"]).decode()`` reads it). A VTK string array would be the
+    natural form, but meshio (and so bladesolid's own volume-mesh reader) refuses a file that
+    has one; the file written by :func:`write_vtu` also carries the caution as readable text.
     """
     import pyvista as pv
 
@@ -154,23 +319,67 @@ def element_grid(blade, fields: ElementFields, hotspots: HotSpots | None = None)
     fd["total_ctm_Nm"] = np.array([fields.totals.ctm_Nm])
     for code, name in enumerate(REGIONS):  # numbers only: string arrays break other VTU readers
         fd[f"region_{code}_" + name.replace("/", "_").replace(" ", "_").replace("-", "_")] = np.array([code])
+    fd["caution"] = caution_codes()
     return grid
 
 
+def caution_codes() -> np.ndarray:
+    """The caution as an array of its UTF-8 bytes (``uint8``), for files that hold numbers only.
+
+    >>> bytes(caution_codes()).decode("utf-8") == CAUTION
+    True
+    """
+    return np.frombuffer(CAUTION.encode("utf-8"), dtype=np.uint8).copy()
+
+
+def _with_xml_comment(data: bytes, comment: str) -> bytes:
+    r"""XML file bytes with ``<!-- comment -->`` after the XML declaration (or at the start).
+
+    >>> _with_xml_comment(b'<?xml version="1.0"?>\n<a/>\n', "note")
+    b'<?xml version="1.0"?>\n<!-- note -->\n<a/>\n'
+    """
+    if "--" in comment or comment.endswith("-"):
+        raise ValueError("an XML comment cannot hold '--' or end in '-'")
+    text = f"<!-- {comment} -->\n".encode("utf-8")
+    if data.startswith(b"<?xml"):
+        end = data.index(b"?>") + 2
+        if data[end:end + 1] == b"\n":
+            end += 1
+        else:
+            text = b"\n" + text
+        return data[:end] + text + data[end:]
+    return text + data
+
+
 def write_vtu(grid, path, force: bool = False) -> str:
-    """Write the element grid (nodes, elements, every field) as a VTK XML ``.vtu`` file."""
+    """Write the element grid (nodes, elements, every field) as a VTK XML ``.vtu`` file, with
+    the caution in its field data (``caution``, see :func:`element_grid`) and as an XML
+    comment at the top of the file (ignored by every XML reader)."""
     p = os.fspath(path)
     if not p.lower().endswith(".vtu"):
         raise InputError(p, "the element file must end in .vtu")
-    with staged_file(p, force) as tmp:
+    return atomic_write_bytes(p, vtu_bytes(grid), force)
+
+
+def vtu_bytes(grid) -> bytes:
+    """The ``.vtu`` file of :func:`write_vtu`, as bytes."""
+    import tempfile
+
+    if "caution" not in grid.field_data:
+        grid = grid.copy(deep=False)
+        grid.field_data["caution"] = caution_codes()
+    with tempfile.TemporaryDirectory(prefix="bladesolid-") as d:
+        tmp = os.path.join(d, "elements.vtu")
         grid.save(tmp, binary=True)
-    return p
+        with open(tmp, "rb") as fh:
+            data = fh.read()
+    return _with_xml_comment(data, CAUTION)
 
 
 # --- scene helpers ---------------------------------------------------------------------
 
 
-def _plotter(window_size, shape=(1, 1), interactive: bool = False, **kw):
+def _new_plotter(window_size, shape=(1, 1), interactive: bool = False, **kw):
     import pyvista as pv
 
     if not os.environ.get("DISPLAY"):
@@ -181,9 +390,97 @@ def _plotter(window_size, shape=(1, 1), interactive: bool = False, **kw):
     theme.font.color = INK
     theme.font.family = "arial"
     theme.show_edges = False
+    # Anti-aliasing by FXAA (one filtering pass over the finished image): on the software
+    # renderer of a headless machine it costs about half of 4x multisampling and a third of
+    # super-sampling, for edges and thin lines that look the same at the saved size (measured
+    # on the review's renders). Set through VTK: pyvista declines FXAA on EGL, but VTK's
+    # filter draws correctly there (the render tests check the pictures).
+    theme.multi_samples = 0
     pl = pv.Plotter(off_screen=not interactive, window_size=list(window_size), shape=shape, theme=theme,
                     border=False, **kw)
+    for r in pl.renderers:
+        r.SetUseFXAA(True)
     return pl
+
+
+def _plotter(window_size, shape=(1, 1), interactive: bool = False, session=None, **kw):
+    """A plotter for one picture: the ``session``'s (cleared) when given, else a new one."""
+    if session is not None and not interactive:
+        return session.plotter(window_size, shape, **kw)
+    return _new_plotter(window_size, shape, interactive, **kw)
+
+
+class RenderSession:
+    """Off-screen plotters and scene pieces shared by a series of renders.
+
+    Opening a plotter (an OpenGL context and its shaders) and extracting a grid's surface and
+    outline cost more than drawing one picture; the renders of a review all show the same
+    element grid. Inside a session each render clears and reuses the plotter of its window
+    size and layout, reuses the surface and outline of a grid it has seen, and is drawn exactly
+    once. Pictures are the same as without a session::
+
+        with views.render_session() as s:
+            views.render_field(blade, fields, "ctm_Nm", "ctm.png", grid=grid, session=s)
+            views.render_field(blade, fields, "mass_kg", "mass.png", grid=grid, session=s)
+
+    One session per thread; closed (its plotters released) when the ``with`` block ends.
+    """
+
+    def __init__(self):
+        self._plotters: dict = {}
+        self._rendered: set = set()
+        self._memo: dict = {}
+
+    def plotter(self, window_size, shape=(1, 1), **kw):
+        key = (tuple(int(v) for v in window_size), tuple(shape), repr(sorted(kw.items())))
+        pl = self._plotters.get(key)
+        if pl is None:
+            pl = self._plotters[key] = _new_plotter(window_size, shape, False, **kw)
+        else:
+            # remove the last picture's actors and colour bars; lights and window stay
+            for r in pl.renderers:
+                r.clear_actors()
+            pl.scalar_bars.clear()
+            pl.subplot(0, 0)
+        pl.suppress_rendering = True  # nothing is drawn while the scene is built: once, in _finish
+        return pl
+
+    def memo(self, key: tuple, obj, make):
+        """``make()`` once per (key, obj) for the session's lifetime (``obj`` is kept alive,
+        so its id is not reused)."""
+        k = key + (id(obj),)
+        if k not in self._memo:
+            self._memo[k] = (obj, make())
+        return self._memo[k][1]
+
+    def draw(self, pl):
+        """Render ``pl`` once and return its image, (h, w, 3) uint8."""
+        pl.suppress_rendering = False
+        if id(pl) in self._rendered:
+            pl.render()  # later pictures: an explicit render (screenshot only renders the first time)
+        self._rendered.add(id(pl))
+        return pl.screenshot(None, return_img=True)
+
+    def close(self):
+        for pl in self._plotters.values():
+            pl.close()
+        self._plotters.clear()
+        self._rendered.clear()
+        self._memo.clear()
+
+
+@contextlib.contextmanager
+def render_session():
+    """A :class:`RenderSession` closed when the block ends."""
+    s = RenderSession()
+    try:
+        yield s
+    finally:
+        s.close()
+
+
+def _memo(session, key: tuple, obj, make):
+    return make() if session is None else session.memo(key, obj, make)
 
 
 def has_display() -> bool:
@@ -191,15 +488,39 @@ def has_display() -> bool:
     return bool(os.environ.get("DISPLAY") or os.environ.get("WAYLAND_DISPLAY"))
 
 
-def _finish(pl, path, force: bool):
+def png_bytes(image, dpi: float = PICTURE_DPI) -> bytes:
+    """An (h, w, 3|4) uint8 image as PNG bytes, marked ``dpi`` (default :data:`PICTURE_DPI`)."""
+    from PIL import Image
+
+    buf = io.BytesIO()
+    Image.fromarray(np.ascontiguousarray(image)).save(buf, format="png", compress_level=PNG_COMPRESS_LEVEL,
+                                                      dpi=(dpi, dpi))
+    return buf.getvalue()
+
+
+def _deliver(data: bytes, path, force: bool):
+    """Write ``data`` to ``path`` (atomically; an existing file only with ``force``) or into
+    a binary file object. Returns the path (or the file object)."""
+    if hasattr(path, "write"):
+        path.write(data)
+        return path
+    return atomic_write_bytes(path, data, force)
+
+
+def _finish(pl, path, force: bool, session=None):
+    if not has_caution(pl):
+        raise RuntimeError("internal: a picture without the caution footer (views.add_caution)")
     if path is None:  # interactive: the user looks, turns and closes the window
         pl.show()
         return None
-    with staged_file(path, force) as tmp:
-        pl.enable_anti_aliasing("ssaa")
-        pl.screenshot(tmp)
-    pl.close()
-    return os.fspath(path)
+    if session is None:
+        try:
+            image = pl.screenshot(None, return_img=True)
+        finally:
+            pl.close()
+    else:
+        image = session.draw(pl)
+    return _deliver(png_bytes(image), path, force)
 
 
 def _chain_line(a, b, dash: float):
@@ -412,7 +733,7 @@ def _add_axes(pl, frame: HubFrame, surface, cam: _Camera, fs: int):
             _line_label(pl, cam, p0, p1, name, fs, AXIS_INK)
 
 
-def _add_station(pl, blade, surface, cam: _Camera, fs: int, overlay: bool):
+def _add_station(pl, blade, surface, cam: _Camera, fs: int, overlay: bool, session=None):
     """The reference station: the section outline where the plane normal to e at the
     reference radius cuts the blade, and the outline of that plane (unless seen face-on)."""
     import pyvista as pv
@@ -421,13 +742,14 @@ def _add_station(pl, blade, surface, cam: _Camera, fs: int, overlay: bool):
     e, P = frame.e, frame.P
     r = float(blade.reference_radius_m)
     foot = P + (r - P @ e) * e
-    cut = surface.slice(normal=e, origin=foot)
-    if cut.n_points == 0:
+    section = _memo(session, ("station", r), surface, lambda: surface.slice(normal=e, origin=foot))
+    if section.n_points == 0:
         return
+    cut = section.copy()
     if overlay:
         cut.points = cam.front(np.asarray(cut.points))
     pl.add_mesh(cut, color=STATION_INK, line_width=2.6)
-    q = np.asarray(surface.slice(normal=e, origin=foot).points)
+    q = np.asarray(section.points)
     rel = q - foot
     u = rel[np.argmax(np.linalg.norm(rel, axis=1))]
     u = u - (u @ e) * e
@@ -449,9 +771,11 @@ def _add_station(pl, blade, surface, cam: _Camera, fs: int, overlay: bool):
 
 
 def _add_field_mesh(pl, mesh, grid_name, name, clim_info, fs, scalar_title, show_bar=True, bar_pos=None,
-                    category_texts=None):
+                    category_texts=None, bottom: float = 0.0):
     """Add a mesh coloured by a per-element field; categorical fields get a labelled key
-    (``category_texts`` replaces the key's labels, e.g. with each region's share)."""
+    (``category_texts`` replaces the key's labels, e.g. with each region's share). The
+    default colour bar and key stand ``bottom`` (a fraction of the height) higher, above the
+    caution footer."""
     style = FIELD_STYLES[name]
     common = dict(ambient=0.5, diffuse=0.55, specular=0.03, smooth_shading=False)
     if style.categories is not None:
@@ -471,7 +795,7 @@ def _add_field_mesh(pl, mesh, grid_name, name, clim_info, fs, scalar_title, show
 
         bar = dict(title=style.label[:1].upper() + style.label[1:], n_labels=0, title_font_size=fs,
                    label_font_size=_pt(fs, 0.87), color=INK, vertical=True, width=0.045,
-                   height=0.065 * len(cats), position_x=0.8, position_y=0.12, fmt="")
+                   height=0.065 * len(cats), position_x=0.8, position_y=bottom + 0.12, fmt="")
         if bar_pos:
             bar.update(bar_pos)
         pl.add_mesh(mesh, scalars="_category", cmap=ListedColormap(colors), clim=(-0.5, len(cats) - 0.5),
@@ -479,7 +803,7 @@ def _add_field_mesh(pl, mesh, grid_name, name, clim_info, fs, scalar_title, show
                     annotations={float(i): t for i, t in enumerate(texts)}, **common)
         return
     cmap, clim, _ = clim_info
-    bar = dict(n_labels=5, fmt="%.3g", label_font_size=_pt(fs, 1.07), position_x=0.28, position_y=0.03,
+    bar = dict(n_labels=5, fmt="%.3g", label_font_size=_pt(fs, 1.07), position_x=0.28, position_y=bottom + 0.03,
                height=0.075)
     bar.update(bar_pos or {})
     _colour_bar_args = _horizontal_bar(pl, scalar_title, fs, bar, show_bar)
@@ -557,9 +881,11 @@ def _prepare(grid, field_name, per_volume, percentile, mesh):
 
 def render_field(blade, fields: ElementFields, field_name: str, path, view: str = "planform", *,
                  per_volume: bool = True, percentile: float = 100.0, hotspots: HotSpots | None = None,
-                 grid=None, window_size=WINDOW, title: str | None = None, force: bool = False) -> str | None:
+                 grid=None, window_size=WINDOW, title: str | None = None, force: bool = False,
+                 session: RenderSession | None = None) -> str | None:
     """Render the blade coloured by one per-element field and write a PNG (``path`` None:
-    open an interactive window instead, which needs a display — see :func:`has_display`).
+    open an interactive window instead, which needs a display — see :func:`has_display`;
+    ``path`` may also be a binary file object). Every picture and window carries the caution.
 
     field_name : ``ctm_Nm``, ``radial_pull_N``, ``mass_kg``, ``volume_m3``, ``ctm_share_band``,
       ``pull_share_band``, ``region`` or ``body``
@@ -569,46 +895,53 @@ def render_field(blade, fields: ElementFields, field_name: str, path, view: str 
     percentile : colour limits from this percentile of |value| (signed) or of the values
       (unsigned); 100 uses the extremes
     grid : an :func:`element_grid` to reuse (built when None)
+    session : a :class:`RenderSession` to draw in (a new plotter when None)
     Returns the path written. The surface shows the elements that touch it.
     """
     if grid is None:
         grid = element_grid(blade, fields, hotspots)
-    surface = grid.extract_surface(algorithm="dataset_surface")
+    surface = _memo(session, ("surface",), grid, lambda: grid.extract_surface(algorithm="dataset_surface"))
     arr, style, label, info, bar_title = _prepare(grid, field_name, per_volume, percentile, surface)
     win = tuple(window_size)
     fs = _font(win, 15)
+    foot = footer_fraction(win)
     d, up = _view_basis(blade.frame, view)
     categorical = style.categories is not None
     top = 1.0 - (0.07 + 3.4 * fs / win[1])
     cam = _fit_camera(_scene_points(blade.frame, surface), d, up, win,
-                      band=(0.05 if categorical else 0.16, top), hband=(0.0, 0.8) if categorical else (0.0, 1.0))
-    pl = _plotter(win, interactive=path is None)
+                      band=(foot + (0.05 if categorical else 0.16), top),
+                      hband=(0.0, 0.8) if categorical else (0.0, 1.0))
+    pl = _plotter(win, interactive=path is None, session=session)
     texts = None
     if field_name == "region" and hotspots is not None:
         # the hot-spot shares on the picture itself, beside each region's colour
         rows = {row["region"]: row for row in hotspots.table}
         texts = [f"{n}: {rows[n]['ctm_pct']:.1f} % of CTM, {rows[n]['radial_pull_pct']:.1f} % of pull"
                  if n in rows else n for n in REGIONS]
-    _add_field_mesh(pl, surface, arr, field_name, info, fs, bar_title, category_texts=texts)
-    pl.add_mesh(_edges(surface), color=INK, line_width=1.0, opacity=0.5)
+    _add_field_mesh(pl, surface, arr, field_name, info, fs, bar_title, category_texts=texts, bottom=foot)
+    pl.add_mesh(_memo(session, ("edges",), surface, lambda: _edges(surface)), color=INK, line_width=1.0,
+                opacity=0.5)
     _add_axes(pl, blade.frame, surface, cam, _pt(fs, 0.87))
-    _add_station(pl, blade, surface, cam, _pt(fs, 0.87), overlay=view in ("planform", "aft", "tip"))
+    _add_station(pl, blade, surface, cam, _pt(fs, 0.87), overlay=view in ("planform", "aft", "tip"),
+                 session=session)
     _title(pl, win, fs, f"{_sentence(title or label)} — {fields.rpm:g} rpm, blade angle {fields.blade_angle_deg:.1f}°",
            _subtitle(blade, fields) + f"  ·  view: {view}")
+    add_caution(pl)
     cam.apply(pl)
-    return _finish(pl, path, force)
+    return _finish(pl, path, force, session)
 
 
 def render_clipped(blade, fields: ElementFields, field_name: str, stations, path, *, per_volume: bool = True,
                    percentile: float = 100.0, hotspots: HotSpots | None = None, grid=None,
-                   window_size=WINDOW, force: bool = False) -> str:
+                   window_size=WINDOW, force: bool = False, session: RenderSession | None = None) -> str:
     """The blade cut at ``stations`` (radii along e, m) showing the element field inside.
 
     Top: the blade split by planes normal to e at the stations, the pieces drawn a little
     apart so the cut faces show. Bottom: each cut face seen from the tip (looking inboard
     along −e), all at the same scale, with the leading and trailing edges named and the
     pitch axis marked (circle and dot). Cut faces are the element cells sliced by the planes,
-    each coloured by its element's value; colours are shared by all panels.
+    each coloured by its element's value; colours are shared by all panels. A third, thin
+    row across the whole width carries the caution. ``session``: as :func:`render_field`.
     """
     from .frame import chord_line
 
@@ -630,7 +963,9 @@ def render_clipped(blade, fields: ElementFields, field_name: str, stations, path
     fs = _font(win, 15)
     n = len(stations)
     top_h = 0.58
-    pl = _plotter(win, shape=(2, n), groups=[(0, np.s_[:])], row_weights=[top_h, 1 - top_h])
+    foot = footer_fraction(win)
+    pl = _plotter(win, shape=(3, n), groups=[(0, np.s_[:]), (2, np.s_[:])],
+                  row_weights=[top_h, 1 - top_h - foot, foot], session=session)
     # top: exploded pieces
     pl.subplot(0, 0)
     gap = 0.04 * (hi - lo)
@@ -670,7 +1005,7 @@ def render_clipped(blade, fields: ElementFields, field_name: str, stations, path
         if f.n_points:
             q = np.asarray(f.points)
             hx, hy = max(hx, 0.5 * float(np.ptp(q @ right2))), max(hy, 0.5 * float(np.ptp(q @ up2)))
-    panel = (win[0] / n, win[1] * (1 - top_h))
+    panel = (win[0] / n, win[1] * (1 - top_h - foot))
     for i, (f, r) in enumerate(zip(faces, stations)):
         pl.subplot(1, i)
         pl.add_text(f"r = {r:.3f} m  ({r / hi:.2f} of the tip radius)", position="upper_left",
@@ -692,13 +1027,15 @@ def render_clipped(blade, fields: ElementFields, field_name: str, stations, path
             _label(pl, cam2, pt, name, _pt(fs, 0.73), AXIS_INK, offset_px=(6 if sx > 0 else -6, 0),
                    halign="left" if sx > 0 else "right", valign="center")
         cam2.apply(pl)
-    return _finish(pl, path, force)
+    pl.subplot(2, 0)
+    add_caution(pl)
+    return _finish(pl, path, force, session)
 
 
 def render_deviation(vertices, faces, values, path, *, frame: HubFrame | None = None, view: str = "planform",
                      title: str = "Surface deviation", limit_mm: float | None = None, percentile: float = 100.0,
                      sign_note: str = "+ material added, − removed", window_size=WINDOW,
-                     force: bool = False) -> str:
+                     force: bool = False, session: RenderSession | None = None) -> str:
     """Render a signed per-vertex surface deviation (compare) and write a PNG.
 
     vertices : (n, 3) m, hub frame;  faces : (m, 3) int;  values : (n,) signed deviation, m
@@ -706,6 +1043,7 @@ def render_deviation(vertices, faces, values, path, *, frame: HubFrame | None = 
     limit_mm : symmetric colour limit ±limit (default: the ``percentile`` of |deviation|)
     sign_note : what the signs mean, shown beside the unit in the colour-bar caption
     view : as :func:`render_field`, in the given hub ``frame`` (default identity)
+    session : as :func:`render_field`. The picture carries the caution.
     """
     import pyvista as pv
 
@@ -723,20 +1061,22 @@ def render_deviation(vertices, faces, values, path, *, frame: HubFrame | None = 
     m = m if m > 0 else 1e-3
     win = tuple(window_size)
     fs = _font(win, 15)
+    foot = footer_fraction(win)
     d, up = _view_basis(frame, view)
     top = 1.0 - (0.07 + 3.4 * fs / win[1])
-    cam = _fit_camera(v, d, up, win, band=(0.16, top))
-    pl = _plotter(win)
+    cam = _fit_camera(v, d, up, win, band=(foot + 0.16, top))
+    pl = _plotter(win, session=session)
     bar = _horizontal_bar(pl, "Deviation, mm" + (f"   ({sign_note})" if sign_note else ""), fs,
                           dict(n_labels=5, fmt="%.3g", label_font_size=_pt(fs, 1.07), position_x=0.28,
-                               position_y=0.03, height=0.075), True)
+                               position_y=foot + 0.03, height=0.075), True)
     pl.add_mesh(mesh, scalars="deviation_mm", cmap=DEVIATION_CMAP, clim=(-m, m), scalar_bar_args=bar,
                 smooth_shading=True, ambient=0.42, diffuse=0.62, specular=0.04)
     pl.add_mesh(_edges(mesh), color=INK, line_width=1.0, opacity=0.5)
     peak = float(finite.max()) if finite.size else 0.0
     _title(pl, win, fs, title, f"largest magnitude {peak:.3g} mm  ·  colour limit ±{m:.3g} mm  ·  view: {view}")
+    add_caution(pl)
     cam.apply(pl)
-    return _finish(pl, path, force)
+    return _finish(pl, path, force, session)
 
 
 # --- matplotlib plots ----------------------------------------------------------------------------
@@ -748,7 +1088,7 @@ PLOT_COLORS = {"ctm": "#5e3c99", "stiffness": "#b35806", "pull": "#1b6f7a", "mas
 def _figure(size=(9.0, 6.0)):
     from matplotlib.figure import Figure
 
-    return Figure(figsize=size, dpi=150, facecolor="white", layout="constrained")
+    return Figure(figsize=size, dpi=PICTURE_DPI, facecolor="white", layout="constrained")
 
 
 def _num(x: float, fmt: str = ".4g") -> str:
@@ -769,11 +1109,30 @@ def _style_axes(ax):
     ax.xaxis.label.set_color(INK)
 
 
-def _save_figure(fig, path, force):
-    with staged_file(path, force) as tmp:
-        fig.savefig(tmp, format=os.path.splitext(os.fspath(path))[1].lstrip(".").lower() or "png",
-                    bbox_inches="tight")
-    return os.fspath(path)
+def _save_figure(fig, path, force, above: str = ""):
+    """Add the caution footer (and ``above`` it, a note) and save the figure: a PNG (or the
+    format of the path's extension), or PNG bytes into a binary file object.
+
+    A PNG is drawn once: one draw lays the figure out and renders it, and the rendered
+    buffer is encoded directly (a plain ``savefig`` with a layout engine draws twice).
+    """
+    add_caution(fig, above=above)
+    fmt = "png" if hasattr(path, "write") else os.path.splitext(os.fspath(path))[1].lstrip(".").lower() or "png"
+    if fmt != "png":
+        with staged_file(path, force) as tmp:
+            fig.savefig(tmp, format=fmt)
+        return os.fspath(path)
+    return _deliver(figure_png(fig), path, force)
+
+
+def figure_png(fig) -> bytes:
+    """A matplotlib figure drawn once (Agg, its layout engine included) as PNG bytes."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+
+    canvas = FigureCanvasAgg(fig)
+    canvas.draw()
+    rgba = np.asarray(canvas.buffer_rgba())
+    return png_bytes(rgba[..., :3] if np.all(rgba[..., 3] == 255) else rgba, dpi=fig.dpi)
 
 
 def zero_crossings(x, y) -> list[float]:
@@ -903,9 +1262,7 @@ def plot_hot_spots(hotspots: HotSpots, path, title: str = "", *, force: bool = F
     fig.suptitle(title or f"Where the loads come from — {hotspots.rpm:g} rpm, blade angle {hotspots.blade_angle_deg:.1f}°",
                  fontsize=12, color=INK, x=0.02, ha="left")
     defs = hotspots.definitions()
-    fig.text(0.02, -0.02, "\n".join(f"{k}: {v}" for k, v in defs.items()), fontsize=7, color="#55554f",
-             ha="left", va="top")
-    return _save_figure(fig, path, force)
+    return _save_figure(fig, path, force, above="\n".join(f"{k}: {v}" for k, v in defs.items()))
 
 
 def plot_match(match: dict, path, title: str = "", *, force: bool = False) -> str:

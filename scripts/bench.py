@@ -46,6 +46,14 @@ Rows:
    smaller mesh), eight modes at five speeds (target a few minutes), and the convergence of
    the untwist and peak stress under mesh refinement.
 
+12. the whole review against the loads alone, whole process, on the demo job (``bladesolid demo``):
+   ``bladesolid check`` (mesh, element fields, spanwise cuts, every plot and render, VTU, HTML)
+   against ``bladesolid loads`` of the same job, alternated, median of several runs after a
+   warm-up (numba cache warm). Target: check <= 2.5x loads.
+
+Sections are entries of ``SECTIONS`` (name: function of the run's ``Bench`` context); a new
+measurement is one function and one entry there, and ``--only``/``--skip`` take its name.
+
 numba kernels are compiled (or loaded from the on-disk cache) before any timing. Times are
 medians of repeats; wall clock (``time.perf_counter``).
 """
@@ -53,6 +61,7 @@ medians of repeats; wall clock (``time.perf_counter``).
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import json
 import os
 import statistics
@@ -728,7 +737,93 @@ def bench_elastic_refinement(folder, sizes):
             f"tip deflection {np.linalg.norm(sh.tip_deflection_m) * 1e3:.4f} mm", "converging")
 
 
+# --------------------------------------------------------------------------- 12. review vs loads
+
+
+def demo_job(folder) -> Path:
+    """The demo job, written by ``bladesolid demo`` (which also runs one review: a warm-up)."""
+    d = Path(folder) / "demo"
+    job = d / "demo_job.toml"
+    if not job.exists():
+        r = subprocess.run([sys.executable, "-m", "bladesolid", "demo", str(d)], capture_output=True, text=True,
+                           cwd=folder, env=headless_env())
+        assert r.returncode == 0, r.stderr
+    return job
+
+
+def headless_env() -> dict:
+    return {**os.environ, "PYVISTA_OFF_SCREEN": "true", "MPLBACKEND": "Agg"}
+
+
+def bench_review_vs_loads(folder, repeats):
+    print("[12] check against loads, demo job, whole process", flush=True)
+    job = demo_job(folder)
+    out = Path(folder) / "demo-review"
+    check = [sys.executable, "-m", "bladesolid", "check", str(job), "--out", str(out), "--force"]
+    loads = [sys.executable, "-m", "bladesolid", "loads", str(job)]
+
+    def run(cmd):
+        t0 = time.perf_counter()
+        r = subprocess.run(cmd, capture_output=True, text=True, cwd=folder, env=headless_env())
+        assert r.returncode == 0, r.stderr
+        return time.perf_counter() - t0
+
+    run(check), run(loads)  # warm: file cache, numba cache, shader cache
+    t_check, t_loads = [], []
+    for _ in range(repeats):  # alternated, so both see the same machine
+        t_check.append(run(check))
+        t_loads.append(run(loads))
+    tc, tl = statistics.median(t_check), statistics.median(t_loads)
+    t = json.loads((out / "report.json").read_text()).get("timings_s", {})
+    compute = sum(t.get(k, 0.0) for k in ("load", "mesh", "integrate", "loads", "spanwise", "fields", "compare"))
+    row("12 review", f"bladesolid check of the demo job, median of {repeats} (last run: computing {compute:.2f} s, "
+        f"pictures and files {t.get('write_views', 0.0):.2f} s)", f"{tc:.2f} s",
+        f"bladesolid loads of the same job {tl:.2f} s", f"{tc / tl:.2f}x", "<= 2.5x", tc / tl <= 2.5)
+
+
+
 # --------------------------------------------------------------------------- main
+
+
+@dataclasses.dataclass(frozen=True)
+class Bench:
+    """What every section gets: a scratch folder and the --quick flag."""
+
+    folder: str
+    quick: bool
+
+
+def _geometry(b: Bench):
+    from bladesolid.demo import large_blade_surface
+
+    v, f = large_blade_surface(24_000 if b.quick else 240_000)
+    bench_geometry(v, f, baseline=not b.quick)
+
+
+def _surface(b: Bench):
+    from bladesolid.demo import large_blade_surface
+
+    v, f = large_blade_surface(24_000 if b.quick else 240_000)
+    bench_surface(v * 1e-3, f)
+
+
+#: name: function(Bench), run in this order.
+SECTIONS = {
+    "kernel": lambda b: bench_kernel(200_000 if b.quick else 2_000_000),
+    "surface": _surface,
+    "sweep": lambda b: bench_sweep(),
+    "check": lambda b: None if b.quick else bench_check(b.folder),
+    "growth": lambda b: bench_growth(b.folder, [10_000, 100_000] if b.quick else [10_000, 100_000, 1_000_000]),
+    "mass": lambda b: bench_mass_command(b.folder, 2 if b.quick else 5),
+    "refusals": lambda b: bench_refusals(b.folder),
+    "fieldcopy": lambda b: None if b.quick else bench_field_copy(),
+    "batch": lambda b: bench_batch(b.folder),
+    "isolation": lambda b: bench_isolation(3 if b.quick else 7),
+    "geometry": _geometry,
+    "elastic": lambda b: bench_elastic(b.folder, 4_000 if b.quick else 17_000, 3_000 if b.quick else 8_000,
+                                       [0.006, 0.004] if b.quick else [0.006, 0.004, 0.003]),
+    "review": lambda b: bench_review_vs_loads(b.folder, 2 if b.quick else 5),
+}
 
 
 def markdown() -> str:
@@ -740,46 +835,24 @@ def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true", help="smaller sizes (smoke test, not the figures)")
     ap.add_argument("--markdown", metavar="FILE", help="also write the table here")
-    ap.add_argument("--skip", default="", help="comma-separated sections to skip: kernel,surface,sweep,check,growth,mass,refusals,fieldcopy,batch,isolation,geometry,elastic")
+    ap.add_argument("--skip", default="", help=f"comma-separated sections to skip: {','.join(SECTIONS)}")
+    ap.add_argument("--only", default="", help="comma-separated sections to run (default: all)")
     args = ap.parse_args(argv)
     skip = set(filter(None, args.skip.split(",")))
+    only = set(filter(None, args.only.split(","))) or set(SECTIONS)
+    unknown = (skip | only) - set(SECTIONS)
+    if unknown:
+        ap.error(f"unknown sections {', '.join(sorted(unknown))}; expected some of {', '.join(SECTIONS)}")
     t0 = time.perf_counter()
     import numba
 
     print(f"bladesolid bench: {os.cpu_count()} CPUs, numba {numba.__version__} ({numba.config.NUMBA_NUM_THREADS} threads), "
           f"python {sys.version.split()[0]}", flush=True)
     with tempfile.TemporaryDirectory(prefix="bladesolid-bench-") as folder:
-        if "kernel" not in skip:
-            bench_kernel(200_000 if args.quick else 2_000_000)
-        if "surface" not in skip:
-            from bladesolid.demo import large_blade_surface
-
-            v, f = large_blade_surface(24_000 if args.quick else 240_000)
-            bench_surface(v * 1e-3, f)
-        if "sweep" not in skip:
-            bench_sweep()
-        if "check" not in skip and not args.quick:
-            bench_check(folder)
-        if "growth" not in skip:
-            bench_growth(folder, [10_000, 100_000] if args.quick else [10_000, 100_000, 1_000_000])
-        if "mass" not in skip:
-            bench_mass_command(folder, 2 if args.quick else 5)
-        if "refusals" not in skip:
-            bench_refusals(folder)
-        if "fieldcopy" not in skip and not args.quick:
-            bench_field_copy()
-        if "batch" not in skip:
-            bench_batch(folder)
-        if "isolation" not in skip:
-            bench_isolation(3 if args.quick else 7)
-        if "geometry" not in skip:
-            from bladesolid.demo import large_blade_surface
-
-            v, f = large_blade_surface(24_000 if args.quick else 240_000)
-            bench_geometry(v, f, baseline=not args.quick)
-        if "elastic" not in skip:
-            bench_elastic(folder, 4_000 if args.quick else 17_000, 3_000 if args.quick else 8_000,
-                          [0.006, 0.004] if args.quick else [0.006, 0.004, 0.003])
+        b = Bench(folder, args.quick)
+        for name, run in SECTIONS.items():
+            if name in only and name not in skip:
+                run(b)
     text = markdown()
     print()
     print(text)

@@ -74,3 +74,27 @@ def dressed(reference):
     from bladesolid import compare
 
     return compare.compare_blade(reference, demo_surfaces("demo_blade_tip_dressed.stl"), DEMO_RPM, transform=np.eye(4))
+# --- pictures --------------------------------------------------------------------------------
+
+
+@pytest.fixture(scope="session")
+def footer_line():
+    """Measures the caution footer of a saved picture (see :func:`_footer_line`)."""
+    return _footer_line
+
+
+def _footer_line(path):
+    """(ink height of the picture's bottom line of text in px, the PNG's dpi, the number of
+    separate marks along it: letters and words, not a bar)."""
+    from PIL import Image
+
+    with Image.open(path) as im:
+        dpi = float(im.info["dpi"][1])
+        img = np.asarray(im.convert("RGB")).astype(int)
+    ink = np.abs(img - img[-1, -1]).sum(axis=-1) > 120
+    rows = np.nonzero(ink.any(axis=1))[0]
+    last = first = rows[-1]
+    while first > 0 and ink[first - 1].any():
+        first -= 1
+    marks = np.diff(ink[first:last + 1].any(axis=0).astype(int)) == 1
+    return last - first + 1, dpi, int(marks.sum())

@@ -103,6 +103,7 @@ def test_batch_in_this_process(tmp_path, reference):
     assert not (out / "bw3-0104").exists()  # the bad job left nothing
     # the summaries: one row per blade, same numbers as the rows
     with open(out / "summary.csv", newline="") as fh:
+        assert fh.readline().startswith("# Results are engineering estimates")  # the caution line
         table = list(csv.DictReader(fh))
     assert [Path(r["job"]).stem for r in table] == ["bw3-0101", "bw3-0102", "bw3-0103", "bw3-0104"]
     assert float(table[1]["mass_kg"]) == by["bw3-0102"]["mass_kg"]  # repr round-trip is exact

@@ -31,6 +31,7 @@ import trimesh
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+from bladesolid import CAUTION
 from bladesolid.cli import main
 
 from .comparehelp import OMEGA, all_imbalances, report_file, synthetic
@@ -218,7 +219,8 @@ def test_loads_sweeps_csv_and_plots(demo_path, tmp_path, capsys):
                         "--rpm-plot", files["rpm_plot"], "--json", files["json"]], capsys)
     assert code == 0, err
     lines = files["csv"].read_text().splitlines()
-    assert lines[0] == "blade_angle_deg,ctm_Nm,pitch_stiffness_Nm_per_rad" and len(lines) == 202
+    assert lines[0] == "# " + CAUTION  # the caution as a comment line, then the table
+    assert lines[1] == "blade_angle_deg,ctm_Nm,pitch_stiffness_Nm_per_rad" and len(lines) == 203
     rows = json.loads(files["json"].read_text())["rpm_sweep"]
     assert [r["rpm"] for r in rows] == list(range(0, 3001, 250))
     # Ω² scaling of the speed sweep (CTM ∝ Ω² at a fixed blade angle)

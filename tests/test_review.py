@@ -48,7 +48,29 @@ def test_folder_holds_every_output(reviewed):
               "operating_points.csv", "rpm_sweep.csv", "ctm_sweep.png", "spanwise.png", "hot_spots.png",
               "render_ctm_planform.png", "render_ctm_tip.png", "render_clipped.png"):
         assert n in names, n
+    assert "CAUTION.txt" in names
     assert not [n for n in names if n.endswith(".part")]
+
+
+def test_every_output_carries_the_caution(reviewed, footer_line):
+    import html
+
+    from bladesolid import CAUTION, report
+
+    assert (reviewed / "CAUTION.txt").read_text().startswith(CAUTION)
+    for csv_file in reviewed.glob("*.csv"):
+        text = csv_file.read_text()
+        assert text.splitlines()[0] == "# " + CAUTION, csv_file.name
+        assert report.csv_rows(text), csv_file.name  # and the table still reads
+    pngs = sorted(reviewed.glob("*.png"))
+    assert len(pngs) >= 12
+    for png in pngs:
+        extent, dpi, marks = footer_line(png)
+        # the footer's bottom line: at least 8 pt at the file's resolution (ink ~0.93 of the size)
+        assert extent >= 0.85 * 8.0 / 72.0 * dpi and marks > 30, png.name
+    assert CAUTION.encode() in (reviewed / "elements.vtu").read_bytes()[:1000]
+    assert (reviewed / "report.html").read_text().count(html.escape(CAUTION)) == 2  # top and footer
+    assert json.loads((reviewed / "report.json").read_text())["caution"] == CAUTION
 
 
 def test_report_json_contract(reviewed):

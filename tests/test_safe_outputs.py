@@ -17,7 +17,7 @@ from pathlib import Path
 
 import pytest
 
-from bladesolid import report
+from bladesolid import CAUTION, report
 from bladesolid.cli import main
 from bladesolid.errors import InputError, OutputExistsError
 
@@ -145,7 +145,9 @@ def test_staged_folder_appears_whole(tmp_path, umask022):
         for i in range(5):
             (Path(tmp) / f"f{i}.csv").write_text(str(i))
         assert not out.exists()  # nothing at the final name until the block ends
-    assert sorted(p.name for p in out.iterdir()) == [f"f{i}.csv" for i in range(5)]
+    assert sorted(p.name for p in out.iterdir()) == ["CAUTION.txt"] + [f"f{i}.csv" for i in range(5)]
+    assert CAUTION in (out / "CAUTION.txt").read_text()
+    assert stat.S_IMODE(os.stat(out / "CAUTION.txt").st_mode) == 0o644
     assert stat.S_IMODE(os.stat(out).st_mode) == 0o755  # an ordinary folder, not mkdtemp's 0o700
     assert temporaries(tmp_path) == []
 
@@ -189,7 +191,7 @@ def test_staged_folder_refuses_and_replaces(tmp_path):
     assert (out / "old.txt").read_text() == "old"
     with report.staged_folder(out, force=True) as tmp:
         (Path(tmp) / "new.txt").write_text("new")
-    assert [p.name for p in out.iterdir()] == ["new.txt"]  # replaced whole, not merged
+    assert sorted(p.name for p in out.iterdir()) == ["CAUTION.txt", "new.txt"]  # replaced whole, not merged
     assert temporaries(tmp_path) == []
     empty = tmp_path / "empty"
     empty.mkdir()
@@ -241,7 +243,7 @@ def test_force_overwrites(argv, flag, tmp_path, capsys, umask022):
     if flag == "--json":
         assert json.loads(text)["schema"] == "bladesolid.report/1"
     else:
-        assert text.splitlines()[0].startswith("radius")
+        assert text.splitlines()[0] == "# " + CAUTION and text.splitlines()[1].startswith("radius")
     assert stat.S_IMODE(target.stat().st_mode) == 0o644
     assert temporaries(tmp_path) == []
 
