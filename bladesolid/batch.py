@@ -58,6 +58,7 @@ import time
 from dataclasses import dataclass
 
 from .errors import InputError, one_line
+from .safefile import write_caution_file
 
 __all__ = ["COLUMNS", "COMMANDS", "SUMMARY_SCHEMA", "BatchResult", "collect_jobs", "lost_worker_reason", "run_batch",
            "run_job"]
@@ -319,6 +320,7 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
     if client is None and scheduler is None and workers == 0:
         where = "in this process"
         os.makedirs(out, exist_ok=True)
+        write_caution_file(out)
         for i, (j, o) in enumerate(zip(jobs, opts)):
             finished(i, run_job(j, o))
     else:
@@ -339,6 +341,7 @@ def run_batch(inputs, out, *, command: str = "loads", force: bool = False, clien
             where = f"dask client ({getattr(client.scheduler, 'address', '?')})"
         try:
             os.makedirs(out, exist_ok=True)  # only once the workers are there to fill it
+            write_caution_file(out)
             n_workers = max(1, len(client.scheduler_info().get("workers", {})) or 1)
             threads = max(1, (os.cpu_count() or 1) // n_workers) if own is not None and scheduler is None else None
             from distributed import as_completed

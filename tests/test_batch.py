@@ -111,7 +111,7 @@ def test_batch_in_this_process(tmp_path, reference):
     summary = json.loads((out / "summary.json").read_text())
     assert (summary["jobs"], summary["ok"], summary["failed"]) == (4, 3, 1)
     assert summary["rows"][2]["ctm_Nm"] == by["bw3-0103"]["ctm_Nm"]
-    assert sorted(p.name for p in out.iterdir()) == ["bw3-0101", "bw3-0102", "bw3-0103", "summary.csv",
+    assert sorted(p.name for p in out.iterdir()) == ["CAUTION.txt", "bw3-0101", "bw3-0102", "bw3-0103", "summary.csv",
                                                       "summary.json"]
 
 

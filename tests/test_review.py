@@ -133,7 +133,7 @@ def test_demo_writes_everything(tmp_path, capsys):
     out = capsys.readouterr().out
     assert "review written" in out
     for n in ("demo_job.toml", "demo_blade.stl", "repair_job.toml", "repair_limits.toml",
-              "review/report.html", "review/report.json", "review/elements.vtu"):
+              "review/report.html", "review/report.json", "review/elements.vtu", "CAUTION.txt", "review/CAUTION.txt"):
         assert (d / n).exists(), n
     r = json.loads((d / "review" / "report.json").read_text())
     assert r["counterweight_sizing"]["net_ctm_Nm"] == pytest.approx(0.0, abs=1e-9)

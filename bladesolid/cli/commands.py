@@ -15,7 +15,9 @@ import sys
 
 import numpy as np
 
+from .. import CAUTION
 from ..errors import InputError
+from ..safefile import write_caution_file
 from ..job import require_operating_points
 from . import printing
 from .options import UsageError, check_output_folder, check_outputs, job_of, job_keys
@@ -129,6 +131,7 @@ def cmd_demo(args) -> int:
 
     check_output_folder(args.dir, args.dir, args.force)
     paths = write_demo(args.dir)
+    write_caution_file(args.dir)
     code = cmd_check(argparse.Namespace(job=paths["job"], out=os.path.join(args.dir, "review"), force=True,
                                         us=args.us))
     # the command as the user typed it (e.g. .venv/bin/bladesolid), so the hint can be pasted
@@ -150,6 +153,7 @@ def cmd_view(args) -> int:
     job, blade, _ = _blade(args, elements=True)
     op = job.operating_points[0]
     f = blade.fields(op.rpm, op.blade_angle_deg, op.pitch_change_deg)
+    printing.console().print(f"[dim]{CAUTION}[/dim]")  # the window shows it too
     views.render_field(blade, f, args.field, None, view=args.view, hotspots=fields.hot_spots(blade, f))
     return 0
 
