@@ -95,6 +95,11 @@ import numpy as np
 from .errors import InputError, one_line
 from .units import LENGTH_UNITS, length_scale
 
+__all__ = ["CAD_FORMATS", "CAD_TOLERANCE_RANGE", "CURVED_ERROR_SHARE", "DEFAULT_CAD_TOLERANCE", "INTEGRATION",
+           "KERNEL_WARN_REL", "CadModel", "FileUnit", "KernelComparison", "KernelFigures", "blade_section",
+           "check_tolerance", "declared_unit", "declares_unit", "file_unit_of", "is_cad", "kernel_differences",
+           "kernel_verdict", "kernel_warning", "read_cad"]
+
 #: CAD formats by extension.
 CAD_FORMATS = {".step": "STEP", ".stp": "STEP", ".iges": "IGES", ".igs": "IGES", ".brep": "BREP"}
 #: Default chord tolerance (largest distance between a triangle and the CAD surface) as a
@@ -130,6 +135,9 @@ DEFAULT_MAX_BYTES = 2 * 1024**3
 MAX_SOLIDS = 100
 #: The message when the optional kernel is not installed.
 MISSING_GMSH = "reading STEP needs the optional gmsh package: pip install 'bladesolid[cad]'"
+#: How the solid's figures of CAD input are integrated (the ``cad.integration`` of the report).
+INTEGRATION = ("divergence theorem over curved six-node triangles, mid-edge nodes on the CAD geometry, "
+               "Dunavant degree-8 rule (exact for the quadratic patches)")
 #: Millimetres: the unit OpenCASCADE converts STEP and IGES coordinates to.
 _KERNEL_UNIT_M = 1e-3
 #: Angular deflection of the kernel's mesher, rad: a second limit beside the chord tolerance
@@ -233,10 +241,11 @@ class CadModel:
     comparisons: tuple = ()
 
     def loaded_mesh(self):
-        """The bodies as a :class:`~bladesolid.io.LoadedMesh` (what ``read_mesh`` returns)."""
+        """The bodies as a :class:`~bladesolid.io.LoadedMesh` (what ``read_mesh`` returns),
+        carrying this model as its ``cad``."""
         from .io import LoadedMesh
 
-        return LoadedMesh(self.path, self.unit, self.bodies, self.warnings, self.file_format)
+        return LoadedMesh(self.path, self.unit, self.bodies, self.warnings, self.file_format, cad=self)
 
 
 # --------------------------------------------------------------------------- front door
@@ -309,16 +318,54 @@ def read_cad(path, units: str | None = None, *, cad_tolerance: float | None = No
     return _assemble(source, fmt, raw, unit, file_unit, scale, tol)
 
 
-def _check_tolerance(value) -> float:
+def is_cad(path) -> bool:
+    """True when ``path`` has a CAD extension (:data:`CAD_FORMATS`).
+
+    >>> is_cad("blade.STEP"), is_cad("blade.stl")
+    (True, False)
+    """
+    return os.path.splitext(os.fsdecode(os.fspath(path)))[1].lower() in CAD_FORMATS
+
+
+def declares_unit(path) -> bool:
+    """True for the CAD formats that carry their own length unit (STEP and IGES, not BREP).
+
+    >>> declares_unit("blade.igs"), declares_unit("blade.brep"), declares_unit("blade.stl")
+    (True, False, False)
+    """
+    return CAD_FORMATS.get(os.path.splitext(os.fsdecode(os.fspath(path)))[1].lower()) in ("STEP", "IGES")
+
+
+def file_unit_of(path, max_bytes: int | None = None) -> FileUnit:
+    """The length unit a STEP or IGES file declares, the file checked first (missing, empty,
+    too large, not the format: :class:`~bladesolid.errors.InputError`); refused when it
+    declares none that can be read."""
+    source = os.fsdecode(os.fspath(path))
+    _check_file(source, DEFAULT_MAX_BYTES if max_bytes is None else int(max_bytes))
+    unit = declared_unit(source)
+    if unit is None:
+        fmt = CAD_FORMATS.get(os.path.splitext(source)[1].lower(), "CAD")
+        raise InputError(source, f"declares no length unit that can be read; re-export the {fmt} file with "
+                                 "its length unit")
+    return unit
+
+
+def check_tolerance(value, source: str = "cad_tolerance") -> float:
+    """``cad_tolerance`` as a float within :data:`CAD_TOLERANCE_RANGE`; an
+    :class:`~bladesolid.errors.InputError` naming ``source`` otherwise."""
     try:
         tol = float(value)
     except (TypeError, ValueError):
-        raise InputError("cad_tolerance", f"must be a number, got {value!r}") from None
+        raise InputError(source, f"must be a number, got {value!r}") from None
     lo, hi = CAD_TOLERANCE_RANGE
-    if not (math.isfinite(tol) and lo <= tol <= hi):
-        raise InputError("cad_tolerance", f"must lie between {lo:g} and {hi:g} (a fraction of "
-                                          f"the model's bounding-box diagonal), got {value!r}")
+    if isinstance(value, bool) or not (math.isfinite(tol) and lo <= tol <= hi):
+        raise InputError(source, f"must lie between {lo:g} and {hi:g} (a fraction of the model's "
+                                 f"bounding-box diagonal), got {value!r}")
     return tol
+
+
+def _check_tolerance(value) -> float:
+    return check_tolerance(value)
 
 
 def _check_file(source: str, limit: int) -> int:
@@ -1031,6 +1078,51 @@ def _where_box(box, scale) -> str:
 
 
 # --------------------------------------------------------------------------- comparison
+
+
+def blade_section(model: CadModel, rotation, translation, densities) -> dict:
+    """The ``cad`` record of a blade read from ``model`` (docs/CONVENTIONS.md §6, §9), with the
+    kernel's figures per body beside bladesolid's under ``"kernel"``.
+
+    rotation, translation : the model-to-hub motion (r' = R r + t) applied to the bodies
+    densities             : kg/m³ per body
+    Figures are in the hub frame (CG m, inertia about the CG kg·m², the kernel's per-unit-
+    density inertia times the density); relative differences as :func:`kernel_differences`.
+    """
+    from .moments import moved
+
+    R = np.asarray(rotation, dtype=float)
+    t = np.asarray(translation, dtype=float)
+    bodies = []
+    for i, (ours, kernel, comparison) in enumerate(zip(model.moments, model.kernel, model.comparisons)):
+        rho = float(densities[i])
+        o = moved(ours.scaled(rho), R, t)
+        k = moved(kernel.moments(rho), R, t)
+        bodies.append({
+            "body": i + 1,
+            "volume_m3": kernel.volume_m3,
+            "cg_m": k.cg,
+            "inertia_cg_kgm2": k.inertia_cg(),
+            "relative_difference": dict(comparison.differences),
+            "volume_rel": comparison.volume_rel,
+            "error_estimate": comparison.error_estimate,
+            "likely_inexact": comparison.likely_inexact,
+            "ours": {"volume_m3": ours.mass, "cg_m": o.cg, "inertia_cg_kgm2": o.inertia_cg()},
+        })
+    curved = sum(m.mass for m in model.moments)
+    flat = sum(m.mass for m in model.straight_moments)
+    return {
+        "format": model.file_format,
+        "file_unit": model.file_unit.label if model.file_unit is not None else None,
+        "unit": model.unit,
+        "cad_tolerance": model.cad_tolerance,
+        "chord_m": model.chord_m,
+        "integration": INTEGRATION,
+        "triangles": [int(len(b.faces)) for b in model.bodies],
+        "mid_nodes": dict(model.curved_record),
+        "tessellation_volume_rel_difference": flat / curved - 1.0 if curved else 0.0,
+        "kernel": bodies,
+    }
 
 
 @dataclass(frozen=True)

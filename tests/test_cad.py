@@ -142,56 +142,10 @@ def test_unreadable_files_refused_before_the_kernel(tmp_path, name, data, expect
 
 gmsh = pytest.importorskip("gmsh")  # everything below needs the optional kernel
 
-#: The test blade: four cambered circular-arc sections (upper arc rising 10 % of the chord,
-#: lower arc 1 %: a crescent-like cambered section; circular-arc sections are a classical
-#: propeller section family, from memory), tapered and twisted, lofted smoothly; metres.
-STATIONS = ((0.10, 0.20, 0.55), (0.40, 0.17, 0.40), (0.70, 0.13, 0.30), (1.00, 0.08, 0.20))
-
-
-def _add_blade(scale: float):
-    occ = gmsh.model.occ
-    wires = []
-    for y, c, twist in STATIONS:
-        ca, sa = math.cos(twist), math.sin(twist)
-
-        def point(x, z):
-            return occ.addPoint(scale * (x * ca - z * sa), scale * y, scale * (x * sa + z * ca))
-
-        le, te = point(-0.5 * c, 0.0), point(0.5 * c, 0.0)
-        upper = occ.addCircleArc(le, point(0.0, 0.10 * c), te, center=False)
-        lower = occ.addCircleArc(te, point(0.0, 0.01 * c), le, center=False)
-        wires.append(occ.addWire([upper, lower]))
-    return occ.addThruSections(wires, makeSolid=True, makeRuled=False)
-
-
-def _write(path, build, capfd=None):
-    """Build a model with ``build()`` in a fresh gmsh session and write it; returns the
-    kernel's (volume, cg, inertia) of each volume, in the model's own unit."""
-    gmsh.initialize(interruptible=False, readConfigFiles=False)
-    try:
-        gmsh.option.setNumber("General.Terminal", 0)
-        build()
-        gmsh.model.occ.synchronize()
-        figures = [(gmsh.model.occ.getMass(3, t), np.array(gmsh.model.occ.getCenterOfMass(3, t)),
-                    np.array(gmsh.model.occ.getMatrixOfInertia(3, t)).reshape(3, 3))
-                   for _, t in gmsh.model.getEntities(3)]
-        gmsh.write(str(path))
-    finally:
-        gmsh.finalize()
-    return figures
-
-
-def _inch_step(text: str) -> str:
-    """A millimetre STEP file relabelled in inches: every length unit of the contexts becomes
-    the conversion-based inch (25.4 mm). Coordinates stay as they are."""
-    extra = ("#900001=LENGTH_MEASURE_WITH_UNIT(LENGTH_MEASURE(25.4),#900003);\n"
-             "#900002=DIMENSIONAL_EXPONENTS(1.,0.,0.,0.,0.,0.,0.);\n"
-             "#900003=(LENGTH_UNIT() NAMED_UNIT(*) SI_UNIT(.MILLI.,.METRE.));\n")
-    text = text.replace("( LENGTH_UNIT() NAMED_UNIT(*) SI_UNIT(.MILLI.,.METRE.) )",
-                        "( CONVERSION_BASED_UNIT('INCH',#900001) LENGTH_UNIT() "
-                        "NAMED_UNIT(#900002) )")
-    return text.replace("ENDSEC;\nEND-ISO-10303-21;", extra + "ENDSEC;\nEND-ISO-10303-21;")
-
+from .cadhelp import STATIONS  # noqa: E402
+from .cadhelp import add_blade as _add_blade  # noqa: E402
+from .cadhelp import inch_step as _inch_step  # noqa: E402
+from .cadhelp import write_model as _write  # noqa: E402
 
 @pytest.fixture(scope="module")
 def files(tmp_path_factory):
