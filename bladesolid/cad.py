@@ -13,7 +13,8 @@ The OpenCASCADE kernel comes with the ``gmsh`` wheel (GPL; the optional extra
    down, the kernel's console output never reaches the caller's stdout/stderr, and the
    kernel's global state, such as OpenCASCADE's unit settings, is never shared between
    calls or threads; this costs ~0.6 s a file, the interpreter starting and importing, against
-   ~0.03 s for the same small file read in the caller's process);
+   ~0.03 s for the same small file read in the caller's process, and ~1 s more for a model with
+   curved faces, whose mid nodes need scipy's nearest-point search);
 3. takes each CAD solid in file order as one :class:`~bladesolid.io.Body`: the boundary
    triangulated by the kernel's own mesher (BRepMesh, one absolute chord tolerance for every
    face so that shared edges get the same points and the shell closes), coordinates in metres,
@@ -642,14 +643,8 @@ def _kernel_read(request: dict) -> dict:
     Returns the result dict (``error`` on refusal); arrays are written to ``mesh.npz``.
     Lengths here are the kernel's (millimetres for STEP/IGES, the file's own for BREP).
     """
-    import importlib
-    import threading
-
     import gmsh
 
-    # the nearest-point search of the mid-edge nodes needs scipy.spatial (~1 s to import): it
-    # is imported beside the kernel's reading and meshing, which release the interpreter
-    threading.Thread(target=importlib.import_module, args=("scipy.spatial",), daemon=True).start()
     fmt = request["format"]
     gmsh.initialize(interruptible=False, readConfigFiles=False)
     try:
@@ -693,6 +688,13 @@ def _kernel_read(request: dict) -> dict:
         if len(volumes) > request["max_solids"]:
             return {"error": f"has {len(volumes)} solids, more than the {request['max_solids']} "
                              "accepted"}
+        if any(gmsh.model.getType(2, t) not in _FLAT for _, t in gmsh.model.getEntities(2)):
+            # the mid nodes on curved faces need scipy.spatial (~1 s to import): it is imported
+            # beside the kernel's meshing, which releases the interpreter
+            import importlib
+            import threading
+
+            threading.Thread(target=importlib.import_module, args=("scipy.spatial",), daemon=True).start()
         box = gmsh.model.getBoundingBox(-1, -1)
         diag = math.dist(box[:3], box[3:])
         solids = []
@@ -854,19 +856,25 @@ def _closest_points(gmsh, dim: int, tag: int, points: np.ndarray) -> tuple[np.nd
     Gauss-Newton steps (``J Jᵀ Δ = −J (S − p)``, J the parametric derivatives) finish. A
     parameter that is periodic (the surface meets itself across the parameter range, as a
     cylinder's) wraps; others stay within their bounds. Returns the points and a mask of
-    those whose step converged (the caller falls back to the kernel for the others).
+    those whose step converged (the caller falls back to the kernel for the others). Planes
+    and lines, linear in their parameters, need no search: one step from anywhere is exact.
     """
-    from scipy.spatial import cKDTree
-
     m = len(points)
     lo, hi = (np.asarray(b, dtype=float) for b in gmsh.model.getParametrizationBounds(dim, tag))
+
+    def value(par):
+        return np.asarray(gmsh.model.getValue(dim, tag, par.ravel().tolist()), dtype=float).reshape(-1, 3)
+
+    if gmsh.model.getType(dim, tag) in _FLAT:
+        par = np.tile(0.5 * (lo + hi), (m, 1))
+        size = float(np.ptp(value(np.vstack([lo, hi])), axis=0).max()) or 1.0
+        return _gauss_newton(gmsh, dim, tag, points, par, lo, hi, np.zeros(dim, bool), size, value)
+    from scipy.spatial import cKDTree
+
     count = int(min(max(4 * m, 4096), 131072))
     side = max(int(round(count ** (1.0 / dim))), 16)
     axes = [np.linspace(lo[k], hi[k], side) for k in range(dim)]
     grid = np.stack([g.ravel() for g in np.meshgrid(*axes, indexing="ij")], axis=1)
-
-    def value(par):
-        return np.asarray(gmsh.model.getValue(dim, tag, par.ravel().tolist()), dtype=float).reshape(-1, 3)
 
     samples = value(grid)
     size = float(np.ptp(samples, axis=0).max()) or 1.0
@@ -877,6 +885,16 @@ def _closest_points(gmsh, dim: int, tag: int, points: np.ndarray) -> tuple[np.nd
         a[:, k], b[:, k] = lo[k], hi[k]
         periodic[k] = hi[k] > lo[k] and np.linalg.norm(value(a) - value(b), axis=1).max() <= 1e-9 * size
     par = grid[cKDTree(samples).query(points)[1]].copy()
+    return _gauss_newton(gmsh, dim, tag, points, par, lo, hi, periodic, size, value)
+
+
+#: Entity types that are linear in their parameters (no search for closest points).
+_FLAT = ("Plane", "Line")
+
+
+def _gauss_newton(gmsh, dim, tag, points, par, lo, hi, periodic, size, value):
+    """Gauss-Newton steps of :func:`_closest_points` from the parameters ``par``."""
+    m = len(points)
     span = np.where(hi > lo, hi - lo, 1.0)
     step = np.full(m, np.inf)
     active = np.arange(m)
