@@ -72,6 +72,10 @@ class Blade:
     element_nodes, element_tets, element_body : the tetrahedral mass elements (hub frame)
     lumped_moments : moments of the lumped masses, hub frame
     modelled_angle : the blade angle measured on the modelled solid (None if not measured)
+    cad : for a blade read from a CAD file, the record of docs/CONVENTIONS.md §9 (format, unit,
+      tolerance, the kernel's figures beside ours: :func:`bladesolid.cad.blade_section`); its
+      ``body_moments`` are then the exact ones of the curved triangles, while ``surfaces`` and
+      the mass elements are the straight triangulation (not exact for the solid)
     """
 
     name: str
@@ -92,6 +96,7 @@ class Blade:
     element_body: np.ndarray | None = None
     field_resolution: dict | None = None
     warnings: tuple[str, ...] = field(default_factory=tuple)
+    cad: dict | None = None
 
     @property
     def surface_moments(self) -> Moments:
@@ -103,8 +108,9 @@ class Blade:
 
     @property
     def elements_exact(self) -> bool:
-        """True when the elements fill exactly the input solid (not a simplified field copy)."""
-        return self.elements is not None and self.field_resolution is None
+        """True when the elements fill exactly the input solid (not a simplified field copy,
+        nor the straight triangulation of a CAD solid's curved faces)."""
+        return self.elements is not None and self.field_resolution is None and self.cad is None
 
     @property
     def solid_moments(self) -> Moments:
@@ -181,8 +187,11 @@ class Blade:
         if isinstance(repaired, (str, os.PathLike)):
             from .io import read_mesh
 
+            from .cad import declares_unit
+
             path = os.fspath(repaired)
-            repaired = [(b.vertices, b.faces) for b in read_mesh(path, units or self.units).bodies]
+            unit = units if units is not None or declares_unit(path) else self.units  # STEP/IGES: the file's
+            repaired = [(b.vertices, b.faces) for b in read_mesh(path, unit).bodies]
             options.setdefault("repaired_source", path)
             options.setdefault("repaired_name", os.path.basename(path))
         if isinstance(limits, (str, os.PathLike)):
@@ -216,7 +225,7 @@ def resolve_materials(specs, n_bodies: int, source: str = "densities") -> tuple[
 
 def load_blade(
     path,
-    units: str,
+    units: str | None,
     densities=None,
     *,
     lumped=(),
@@ -232,11 +241,14 @@ def load_blade(
     progress=None,
     angle_line: str = "chord",
     check=None,
+    cad_tolerance: float | None = None,
 ) -> Blade:
     """Load, validate, mesh and integrate a blade.
 
-    path : mesh file (STL, OBJ, PLY, OFF surface or .msh/.vtu/.inp tetrahedra)
-    units : declared length unit of the file (``mm``, ``cm``, ``m``, ``in``, ``ft``)
+    path : mesh file (STL, OBJ, PLY, OFF surface or .msh/.vtu/.inp tetrahedra) or CAD file
+      (STEP, IGES, BREP; docs/CONVENTIONS.md §9)
+    units : declared length unit of the file (``mm``, ``cm``, ``m``, ``in``, ``ft``); None for
+      a STEP or IGES file takes the unit it declares (a unit given must agree with it)
     densities : list of ``("density", "2810 kg/m^3")`` / ``("material", "al-2025-t6")``,
       or plain strings/numbers (densities), one for all bodies or one per body
     lumped : iterable of :class:`LumpedMass` (model frame positions, m)
@@ -257,6 +269,11 @@ def load_blade(
     An element request beyond :func:`bladesolid.bounds.element_budget` (too many elements for
     the limit or for this machine's memory) is refused before meshing, naming
     ``max_element_volume_m3`` or ``target_elements``.
+    cad_tolerance : chord tolerance of a CAD file's triangulation, a fraction of the model's
+      bounding-box diagonal (default :data:`bladesolid.cad.DEFAULT_CAD_TOLERANCE`). The mass
+      moments of a CAD solid come from its curved triangles (exact for the solid to ~1e-5);
+      the mass elements fill the straight triangulation, so they are not exact for the solid
+      (``Blade.elements_exact`` is False) and their volume difference is reported
 
     A flat bar 40 × 600 × 10 mm from r = 100 mm to 700 mm, aluminium, at 1000 rpm:
 
@@ -277,7 +294,7 @@ def load_blade(
     say = progress or (lambda stage: None)
     frame = frame or hub_frame()
     say("load")
-    loaded = read_mesh(path, units)
+    loaded = read_mesh(path, units, cad_tolerance=cad_tolerance)
     bodies = loaded.bodies
     if densities is not None and not isinstance(densities, (list, tuple)):
         densities = [densities]
@@ -289,15 +306,25 @@ def load_blade(
         R, t = R @ T[:3, :3], R @ T[:3, 3] + t
     surfaces = tuple((b.vertices @ R.T + t, np.asarray(b.faces, dtype=np.int64)) for b in bodies)
     say("integrate surface")
+    exact = None
+    if loaded.cad is not None:  # the curved triangles' moments of each solid, into the hub frame
+        from .moments import moved
+
+        exact = [moved(m, R, t) for m in loaded.cad.moments]
     blade = blade_from_surfaces(
         surfaces, mats, frame, lumped=lumped, reference_radius_m=reference_radius_m,
         reference_fraction=reference_fraction, name=name or str(path).replace("\\", "/").rsplit("/", 1)[-1],
-        source=str(path), units=units, warnings=loaded.warnings, angle_line=angle_line,
+        source=str(path), units=loaded.units, warnings=loaded.warnings, angle_line=angle_line,
+        body_moments=exact,
     )
     if check is not None:
         extra = tuple(check(blade) or ())
         if extra:
             blade = replace(blade, warnings=blade.warnings + extra)
+    if loaded.cad is not None:
+        from .cad import blade_section
+
+        blade = replace(blade, cad=blade_section(loaded.cad, R, t, [m.density_kg_m3 for m in mats]))
     if all(b.tets is not None for b in bodies):
         elements = True  # a volume mesh brings its elements: no meshing, so always use them
     if not elements:
@@ -315,6 +342,8 @@ def load_blade(
     field_info = None
     if any(b.tets is None and len(b.faces) > limit for b in hub_bodies):
         volumes = [abs(m.mass) / mat.density_kg_m3 for m, mat in zip(blade.body_moments, mats)]
+        if loaded.cad is not None:  # the copy simplifies the straight triangles: measured against them
+            volumes = [abs(m.mass) for m in loaded.cad.straight_moments]
         hub_bodies, field_info = _field_copies(hub_bodies, volumes, limit)
         warnings.append(
             f"element fields on a simplified copy ({field_info['faces_field']} of {field_info['faces_full']} "
@@ -328,8 +357,12 @@ def load_blade(
     el = ElementMoments(vol.mass * rho, vol.first * rho[:, None], vol.second * rho[:, None, None])
     if field_info is not None:
         field_info["moments_rel_difference"] = relative_difference(el.total(), blade.surface_moments)
+    cad_info = blade.cad
+    if cad_info is not None:  # the elements fill the straight triangles, not the curved solid
+        cad_info = {**cad_info, "elements_volume_rel_difference": float(vol.mass.sum()) / blade.volume_m3 - 1.0,
+                    "elements_rel_difference": relative_difference(el.total(), blade.surface_moments)}
     return replace(blade, elements=el, element_nodes=tm.nodes, element_tets=tm.tets, element_body=tm.body,
-                   field_resolution=field_info, warnings=tuple(warnings))
+                   field_resolution=field_info, warnings=tuple(warnings), cad=cad_info)
 
 
 def _check_element_request(volume_m3: float, max_volume_m3, target, meshed: bool) -> None:
@@ -358,7 +391,7 @@ def _check_element_request(volume_m3: float, max_volume_m3, target, meshed: bool
 
 def blade_from_surfaces(surfaces, materials, frame: HubFrame, *, lumped=(), reference_radius_m: float | None = None,
                         reference_fraction: float = 0.75, name: str = "blade", source: str = "surfaces",
-                        units: str = "m", warnings=(), angle_line: str = "chord") -> Blade:
+                        units: str = "m", warnings=(), angle_line: str = "chord", body_moments=None) -> Blade:
     """The surface route: a :class:`Blade` (no mass elements) from closed surfaces already in
     the hub frame.
 
@@ -367,9 +400,13 @@ def blade_from_surfaces(surfaces, materials, frame: HubFrame, *, lumped=(), refe
     lumped : :class:`LumpedMass` es (model frame positions, m)
     reference_radius_m : reference station of the blade angle (default: fraction × tip radius)
     angle_line : reference line of the blade angle, ``"chord"`` or ``"face"`` (docs/CONVENTIONS.md §2)
+    body_moments : optional per-body :class:`~bladesolid.moments.Moments` at unit density, hub
+      frame, of the solids the surfaces approximate (the curved triangles of CAD input); by
+      default each body's closed-surface integral
 
-    Each body's moments are the exact closed-surface integral times its density; the blade
-    angle is measured at the reference station (a warning, not an error, when it cannot be).
+    Each body's moments are the exact closed-surface integral (or the given ``body_moments``)
+    times its density; the blade angle is measured at the reference station (a warning, not an
+    error, when it cannot be).
     A density outside the usual range of solids is a warning (:func:`bladesolid.bounds.density_warning`).
     """
     from .bounds import density_warning
@@ -382,7 +419,9 @@ def blade_from_surfaces(surfaces, materials, frame: HubFrame, *, lumped=(), refe
         odd = density_warning(mat.density_kg_m3, mat.label)
         if odd and odd not in warnings:
             warnings.append(odd)
-    body_moments = tuple(surface_volume_moments(v, f).scaled(m.density_kg_m3) for (v, f), m in zip(surfaces, materials))
+    if body_moments is None:
+        body_moments = [surface_volume_moments(v, f) for v, f in surfaces]
+    body_moments = tuple(m.scaled(mat.density_kg_m3) for m, mat in zip(body_moments, materials))
     lumped = tuple(lumped)
     lumped_moments = zero_moments()
     for p in lumped:
@@ -480,10 +519,14 @@ def surface_check(blade: Blade) -> tuple[float, str]:
     """Disagreement between two independent routes to the solid's moments and how it was got.
 
     Meshed: tetrahedral elements against the closed-surface integral. Surface only: our
-    surface integral against trimesh's independent mass-property integration.
+    surface integral against trimesh's independent mass-property integration. CAD input: the
+    same checks on the straight triangulation (the elements fill it, trimesh integrates it);
+    the curved triangles' figures are weighed against the kernel's instead (``Blade.cad``).
     """
     if blade.elements_exact:
         return relative_difference(blade.elements.total(), blade.surface_moments), "elements vs closed surface"
+    if blade.cad is not None:
+        return _tessellation_check(blade)
     import trimesh
 
     total = zero_moments()
@@ -497,6 +540,26 @@ def surface_check(blade: Blade) -> tuple[float, str]:
         m = Moments(vol, vol * c, S_c + vol * np.outer(c, c)).scaled(mat.density_kg_m3)
         total = total + m
     return relative_difference(total, blade.surface_moments), "closed surface vs trimesh mass properties"
+
+
+def _tessellation_check(blade: Blade) -> tuple[float, str]:
+    """:func:`surface_check` of CAD input, on the straight triangulation of its solids."""
+    import trimesh
+
+    from .moments import surface_volume_moments
+
+    ours, theirs = zero_moments(), zero_moments()
+    for (v, f), mat in zip(blade.surfaces, blade.materials):
+        ours = ours + surface_volume_moments(v, f).scaled(mat.density_kg_m3)
+        if blade.elements is None or blade.field_resolution is not None:
+            mp = trimesh.Trimesh(v, f, process=False).mass_properties
+            vol, c = float(mp["volume"]), np.asarray(mp["center_mass"])
+            I_c = np.asarray(mp["inertia"]) / mp["density"]
+            S_c = 0.5 * np.trace(I_c) * np.eye(3) - I_c
+            theirs = theirs + Moments(vol, vol * c, S_c + vol * np.outer(c, c)).scaled(mat.density_kg_m3)
+    if blade.elements is not None and blade.field_resolution is None:
+        return relative_difference(blade.elements.total(), ours), "elements vs triangulated CAD surface"
+    return relative_difference(theirs, ours), "triangulated CAD surface vs trimesh mass properties"
 
 
 def mass_properties(blade: Blade) -> MassProperties:
@@ -603,6 +666,7 @@ def blade_from_job(job, *, elements: bool = True, model_transform=None, progress
         progress=progress,
         angle_line=job.angle_line,
         check=lambda b: check_against_blade(job, b),
+        cad_tolerance=job.cad_tolerance,
     )
     if job.pitch_point_m is not None:
         check_pitch_point(frame, blade.moments.cg, blade.tip_radius_m, f"{job.source}")

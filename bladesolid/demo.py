@@ -38,6 +38,7 @@ from .frame import rotation_about
 from .geometry import enclosed_volume
 
 __all__ = ["DEMO_DENSITY_KG_M3", "REPAIR_JOB", "REPAIR_LIMITS", "SCAN_ANGLE_DEG", "SCAN_AXIS", "SCAN_TRANSLATION_MM",
+           "step_job_text",
            "blade_surface", "BladeParams", "chord_mm", "demo_variants", "designed_blade_angle_deg",
            "geometric_pitch_mm", "large_blade_surface", "le_blend_depth_at", "rigid_transform", "scanned_variant",
            "section_rings", "station_radii", "sweep_mm", "thickness_ratio", "write_demo", "write_demo_meshes"]
@@ -471,7 +472,12 @@ removed_volume = "12000 mm^3"
 def write_demo(folder) -> dict[str, str]:
     """Write the demo into ``folder`` (created): the blade meshes (:func:`write_demo_meshes`),
     the demo job (:data:`bladesolid.job.EXAMPLE_JOB`, the one example job), the repair job and
-    its limits file. Returns the paths of ``"job"``, ``"repair_job"`` and ``"repair_limits"``."""
+    its limits file; and, when the optional CAD kernel (gmsh) is installed, the same blade as a
+    STEP solid (:func:`write_demo_step`, ~0.9 MB) with its job (:func:`step_job_text`).
+    Returns the paths of ``"job"``, ``"repair_job"``, ``"repair_limits"`` and, with the
+    kernel, ``"step"`` and ``"step_job"``."""
+    import importlib.util
+
     from .job import EXAMPLE_JOB
     from .safefile import atomic_write_text
 
@@ -479,9 +485,45 @@ def write_demo(folder) -> dict[str, str]:
     write_demo_meshes(folder)
     paths = {"job": os.path.join(folder, "demo_job.toml"), "repair_job": os.path.join(folder, "repair_job.toml"),
              "repair_limits": os.path.join(folder, "repair_limits.toml")}
-    for key, text in (("job", EXAMPLE_JOB), ("repair_job", REPAIR_JOB), ("repair_limits", REPAIR_LIMITS)):
+    texts = {"job": EXAMPLE_JOB, "repair_job": REPAIR_JOB, "repair_limits": REPAIR_LIMITS}
+    if importlib.util.find_spec("gmsh") is not None:
+        paths["step"] = str(write_demo_step(os.path.join(folder, "demo_blade.step")))
+        paths["step_job"] = os.path.join(folder, "demo_step_job.toml")
+        texts["step_job"] = step_job_text()
+    for key, text in texts.items():
         atomic_write_text(paths[key], text, force=True)
     return paths
+
+
+def step_job_text() -> str:
+    """The demo job for the STEP blade: :data:`bladesolid.job.EXAMPLE_JOB` with the STEP file
+    as its mesh, its unit taken from the file (millimetres, as every point of the job) and the
+    chord tolerance of its triangulation given.
+
+    >>> text = step_job_text()
+    >>> 'mesh = "demo_blade.step"' in text and "units =" not in text
+    True
+    """
+    from .cad import DEFAULT_CAD_TOLERANCE
+    from .job import EXAMPLE_JOB
+
+    lines = {
+        'name = "BW-3 demo blade, serial BW3-0001 (invented)"': 'name = "BW-3 demo blade, serial BW3-0001, from STEP (invented)"',
+        'mesh = "demo_blade.stl"                # path relative to this file':
+            'mesh = "demo_blade.step"               # the same blade as a STEP solid, path relative to this file',
+        'units = "mm"                           # length unit of the mesh and of every point below':
+            '# units: the STEP file declares millimetres, the unit of every point below (a units key\n'
+            '# given for a STEP or IGES file must agree with the file)\n'
+            f'cad_tolerance = {DEFAULT_CAD_TOLERANCE:g}                 # chord tolerance of the triangulation, '
+            'a fraction of the diagonal',
+    }
+    text = EXAMPLE_JOB
+    for old, new in lines.items():
+        head = old.split("#")[0].rstrip()
+        start = text.index(head)  # the example job's line, whatever its comment
+        end = text.index("\n", start)
+        text = text[:start] + new + text[end:]
+    return text.replace("# This is the demo job:", "# This is the demo job for the STEP blade:", 1)
 
 
 def demo_variants() -> dict[str, BladeParams]:

@@ -109,6 +109,7 @@ KEYS: dict[str, str] = {
     "elements": "--elements",
     "element_size": "--element-size",
     "field_faces": "--field-faces",
+    "cad_tolerance": "--cad-tolerance",
     "reference": "--reference",
     "limits": "--limits",
     "operating_point": "",
@@ -173,6 +174,7 @@ class Job:
     elements: int | None = None
     element_size_m: float | None = None
     field_faces: int | None = None
+    cad_tolerance: float | None = None
     lumped: tuple = ()
     counterweight: CounterweightRequest | None = None
     reference: str | None = None
@@ -318,7 +320,7 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
     if "mesh" not in merged:
         raise InputError(source, "missing required key 'mesh' (the blade mesh file)")
     if "units" not in merged:
-        raise InputError(source, "missing required key 'units' (mm, cm, m, in or ft): a mesh file carries no unit")
+        merged["units"] = _declared_units(path_of("mesh"), source)
     units = merged["units"]
     if not isinstance(units, str):
         raise InputError(w("units"), f"must be a string such as \"mm\", got {units!r}")
@@ -474,6 +476,12 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
     field_faces = opt_num("field_faces", integer=True)
     if field_faces is not None and field_faces < 100:
         raise InputError(w("field_faces"), f"must be at least 100, got {field_faces}")
+    cad_tolerance = None
+    if "cad_tolerance" in merged:
+        from .cad import check_tolerance
+
+        cad_tolerance = check_tolerance(_num(merged["cad_tolerance"], w("cad_tolerance"), "cad_tolerance"),
+                                        w("cad_tolerance"))
 
     lumped = []
     if "lumped_mass" in merged:
@@ -551,6 +559,7 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
         elements=elements,
         element_size_m=element_size * scale if element_size is not None else None,
         field_faces=field_faces,
+        cad_tolerance=cad_tolerance,
         lumped=tuple(lumped),
         counterweight=cw,
         reference=path_of("reference") if "reference" in merged else None,
@@ -559,6 +568,22 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
         origins=tuple((k, w(k)) for k in merged if KEYS.get(k) != "")
         + tuple((f"operating_point#{i}", wh) for i, wh in enumerate(op_where)),
     )
+
+
+def _declared_units(mesh: str, source: str) -> str:
+    """The ``units`` of a job without the key: the length unit a STEP or IGES file declares
+    (docs/CONVENTIONS.md §9); every other file needs the key."""
+    from .cad import declares_unit, file_unit_of, is_cad
+    from .units import LENGTH_UNITS
+
+    if not declares_unit(mesh):
+        what = "a BREP file" if is_cad(mesh) else "a mesh file"
+        raise InputError(source, f"missing required key 'units' (mm, cm, m, in or ft): {what} carries no unit")
+    unit = file_unit_of(mesh)
+    if unit.name is None:
+        raise InputError(mesh, f"declares the length unit {unit.label}, none of {', '.join(LENGTH_UNITS)}; the job's "
+                               "points and lengths need one of them: re-export the file in one")
+    return unit.name
 
 
 def load_job(path, flags: dict | None = None) -> Job:

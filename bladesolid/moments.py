@@ -12,7 +12,9 @@ The inertia tensor is ``I = tr(S)·1 − S`` (docs/CONVENTIONS.md §3).
 
 Two independent routes give the totals: the tetrahedral mass elements (closed form for a
 linear tetrahedron, Tonon 2004) and the closed surface alone (divergence theorem over the
-signed tetrahedra that each face makes with a reference point). The numba kernels of the
+signed tetrahedra that each face makes with a reference point). A third,
+:func:`curved_surface_moments`, integrates a closed surface of curved (quadratic, 6-node)
+triangles, the route of CAD input whose mid-edge nodes lie on the exact surface. The numba kernels of the
 integrals live in this module. :func:`check_physical_inertia` refuses a tensor that no solid
 can have (what a self-intersecting or inside-out surface integrates to).
 """
@@ -23,8 +25,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-__all__ = ["ElementMoments", "inertia_from_second", "Moments", "moved", "point_mass", "relative_difference",
-           "surface_volume_moments", "tet_volume_moments", "tet_volume_moments_numpy", "zero_moments"]
+__all__ = ["DUNAVANT_8", "ElementMoments", "curved_surface_moments", "inertia_from_second", "Moments", "moved",
+           "point_mass", "quadratic_triangle_points", "relative_difference", "surface_volume_moments",
+           "tet_volume_moments", "tet_volume_moments_numpy", "zero_moments"]
 
 # --------------------------------------------------------------------------------------
 # numba kernels (compiled on first use, cached on disk)
@@ -338,6 +341,113 @@ def surface_volume_moments(vertices: np.ndarray, faces: np.ndarray) -> Moments:
     )
     local = Moments(float(acc[0]), acc[1:4].copy(), S)
     return moved(local, np.eye(3), ref)
+
+
+#: Dunavant's symmetric rule of degree 8 on the triangle, 16 points, positive weights:
+#: D. A. Dunavant (1985), "High degree efficient symmetrical Gaussian quadrature rules for the
+#: triangle", Int. J. Numer. Meth. Eng. 21, 1129-1148 (the p = 8 rule, as tabulated with 15
+#: digits in J. Burkardt's ``dunavant`` library). Rows: (orbit point in barycentric
+#: coordinates, weight); the weights sum to 1 (multiply by the triangle's area). Exact for
+#: polynomials up to degree 8 (tests/test_moments.py checks every monomial).
+DUNAVANT_8 = (
+    ((1.0 / 3.0, 1.0 / 3.0, 1.0 / 3.0), 0.144315607677787),
+    ((0.081414823414554, 0.459292588292723, 0.459292588292723), 0.095091634267285),
+    ((0.658861384496480, 0.170569307751760, 0.170569307751760), 0.103217370534718),
+    ((0.898905543365938, 0.050547228317031, 0.050547228317031), 0.032458497623198),
+    ((0.008394777409958, 0.263112829634638, 0.728492392955404), 0.027230314174435),
+)
+
+
+def quadratic_triangle_points(rule=DUNAVANT_8) -> tuple[np.ndarray, np.ndarray]:
+    """The points of a symmetric triangle rule expanded over its orbits: ``(bary (q, 3),
+    weights (q,))``, the weights summing to 1.
+
+    >>> bary, w = quadratic_triangle_points()
+    >>> bary.shape, round(float(w.sum()), 12)
+    ((16, 3), 1.0)
+    """
+    import itertools
+
+    pts, wts = [], []
+    for bary, weight in rule:
+        orbit = sorted(set(itertools.permutations(bary)))
+        pts += orbit
+        wts += [weight] * len(orbit)
+    return np.array(pts, dtype=float), np.array(wts, dtype=float)
+
+
+def curved_surface_moments(nodes: np.ndarray, tri6: np.ndarray, *, chunk: int = 32768) -> Moments:
+    """Exact volume moments of the solid bounded by a closed surface of quadratic triangles.
+
+    nodes : (n, 3) float, m
+    tri6  : (k, 6) int, each row corners ``a, b, c`` (outward, right-hand order) then the
+            mid-edge nodes of ``ab``, ``bc``, ``ca``; neighbouring triangles share the three
+            nodes of their common edge (the surface is closed and watertight)
+
+    Each patch is the isoparametric map x(ξ, η) = Σ N_a(ξ, η) x_a of the six-node triangle
+    (N_a the quadratic Lagrange shape functions). By the divergence theorem with Euler's
+    identity for a homogeneous polynomial f of degree p (div(f x) = (p + 3) f),
+    ∫_V f dV = 1/(p + 3) ∮ f x·n dA, with n dA = x_ξ × x_η dξ dη on each patch:
+
+        V = 1/3 ∮ x·n dA,   ∫ x dV = 1/4 ∮ x (x·n) dA,   ∫ x xᵀ dV = 1/5 ∮ x xᵀ (x·n) dA.
+
+    x is quadratic and x_ξ × x_η of degree 2 in (ξ, η), so the integrands are polynomials of
+    degree at most 8, integrated exactly by Dunavant's degree-8 rule (:data:`DUNAVANT_8`).
+    The result is exact for the piecewise-quadratic surface (flat triangles with their mid
+    nodes at the edge midpoints give :func:`surface_volume_moments`). Coordinates are taken
+    from the centre of the bounding box to keep round-off small. Unit density: returns volume
+    (m³), first (m⁴) and second (m⁵) moments about the frame origin.
+
+    The error of a surface of curved triangles whose nodes lie on a smooth surface falls as
+    the fourth power of the triangle size (flat triangles: the second power). A sphere of
+    radius 1 from an octahedron's eight faces, the mid nodes on the sphere: the curved patches
+    hold 3.564 of the exact 4π/3 = 4.189, the flat faces 1.333 (an icosphere of 1280 curved
+    triangles is 9e-6 low, of 1280 flat ones 8.6e-3 low).
+
+    >>> v = np.array([[1., 0, 0], [0, 1, 0], [0, 0, 1], [-1, 0, 0], [0, -1, 0], [0, 0, -1]])
+    >>> corners = np.array([[0, 1, 2], [1, 3, 2], [3, 4, 2], [4, 0, 2],
+    ...                     [1, 0, 5], [3, 1, 5], [4, 3, 5], [0, 4, 5]])
+    >>> edges = {}
+    >>> mids = []
+    >>> def mid(a, b):
+    ...     key = (min(a, b), max(a, b))
+    ...     if key not in edges:
+    ...         p = v[a] + v[b]; mids.append(p / np.linalg.norm(p)); edges[key] = 5 + len(mids)
+    ...     return edges[key]
+    >>> tri6 = np.array([[a, b, c, mid(a, b), mid(b, c), mid(c, a)] for a, b, c in corners])
+    >>> m = curved_surface_moments(np.vstack([v, mids]), tri6)
+    >>> round(m.mass, 3), round(surface_volume_moments(v, corners).mass, 3)
+    (3.564, 1.333)
+    """
+    nodes = np.asarray(nodes, dtype=np.float64)
+    tri6 = np.asarray(tri6, dtype=np.int64)
+    if tri6.ndim != 2 or tri6.shape[1] != 6:
+        raise ValueError(f"tri6 must have shape (k, 6), got {tri6.shape}")
+    if len(tri6) == 0:
+        return zero_moments()
+    bary, w = quadratic_triangle_points()
+    L1, L2, L3 = bary[:, 0], bary[:, 1], bary[:, 2]  # ξ = L2, η = L3
+    # shape functions (q, 6) and their derivatives along ξ and η, node order a, b, c, ab, bc, ca
+    N = np.stack([L1 * (2 * L1 - 1), L2 * (2 * L2 - 1), L3 * (2 * L3 - 1), 4 * L1 * L2, 4 * L2 * L3,
+                  4 * L3 * L1], axis=1)
+    zero = np.zeros_like(L1)
+    dxi = np.stack([1 - 4 * L1, 4 * L2 - 1, zero, 4 * (L1 - L2), 4 * L3, -4 * L3], axis=1)
+    deta = np.stack([1 - 4 * L1, zero, 4 * L3 - 1, -4 * L2, 4 * L2, 4 * (L1 - L3)], axis=1)
+    wq = 0.5 * w  # the reference triangle's area is 1/2
+    used = nodes[np.unique(tri6)]
+    ref = 0.5 * (used.min(axis=0) + used.max(axis=0))
+    acc = np.zeros(10)
+    for lo in range(0, len(tri6), chunk):
+        P = nodes[tri6[lo:lo + chunk]] - ref  # (t, 6, 3)
+        x = np.einsum("qa,tai->tqi", N, P)
+        n = np.cross(np.einsum("qa,tai->tqi", dxi, P), np.einsum("qa,tai->tqi", deta, P))
+        g = np.einsum("tqi,tqi->tq", x, n) * wq  # x·n dA per point
+        acc[0] += g.sum() / 3.0
+        acc[1:4] += np.einsum("tq,tqi->i", g, x) / 4.0
+        xx = np.einsum("tq,tqi,tqj->ij", g, x, x) / 5.0
+        acc[4:] += xx[[0, 1, 2, 0, 0, 1], [0, 1, 2, 1, 2, 2]]
+    S = np.array([[acc[4], acc[7], acc[8]], [acc[7], acc[5], acc[9]], [acc[8], acc[9], acc[6]]])
+    return moved(Moments(float(acc[0]), acc[1:4].copy(), S), np.eye(3), ref)
 
 
 def relative_difference(a: Moments, b: Moments) -> float:

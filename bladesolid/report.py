@@ -18,6 +18,7 @@ from . import CAUTION, __version__
 from .safefile import atomic_write_bytes, atomic_write_text, check_new_output, staged_folder  # noqa: F401
 
 __all__ = ["CSV_COMMENT", "LOAD_FIGURES", "SCHEMA", "atomic_write_bytes", "atomic_write_text", "base_report", "blade_angle_section",
+           "cad_sections",
            "check_new_output", "compare_report", "csv_rows", "csv_text", "dumps", "header", "jsonable", "load_figures",
            "mass_report", "mass_section", "match_report", "operating_point_row", "review_html", "span_report",
            "staged_folder", "sweep_rows"]
@@ -102,8 +103,9 @@ def header(schema: str = SCHEMA, **sections) -> dict:
 
 
 def base_report(blade) -> dict:
-    """Header of every report of one blade: schema, tool, caution, inputs, warnings."""
-    return header(
+    """Header of every report of one blade: schema, tool, caution, inputs, warnings; for a blade
+    read from a CAD file also ``cad`` and ``cad_kernel`` (:func:`cad_sections`)."""
+    data = header(
         input={
             "name": blade.name,
             "mesh": blade.source,
@@ -128,6 +130,19 @@ def base_report(blade) -> dict:
         },
         warnings=list(blade.warnings),
     )
+    data.update(cad_sections(blade))
+    return data
+
+
+def cad_sections(blade) -> dict:
+    """``cad`` and ``cad_kernel`` of docs/CONVENTIONS.md §6 and §9 for a blade read from a CAD
+    file (``{}`` otherwise): how it was read, and per body the kernel's own volume, CG and
+    inertia about the CG (hub frame, density applied) with bladesolid's beside them and their
+    relative differences."""
+    c = getattr(blade, "cad", None)
+    if c is None:
+        return {}
+    return {"cad": {k: v for k, v in c.items() if k != "kernel"}, "cad_kernel": list(c["kernel"])}
 
 
 def blade_angle_section(blade) -> dict:
@@ -397,6 +412,18 @@ def review_html(data: dict, images: dict | None = None, files: list | None = Non
             rows.append([f"modelled blade angle at r = {_num(ba.get('reference_radius_m'), 5)} m",
                          _num(ba.get("modelled_deg"), 5), "deg"])
         parts.append("<section><h2>Mass properties</h2>" + _table(rows, ["quantity", "value", "unit"]) + "</section>")
+
+    cad = d.get("cad")
+    if cad:
+        rows = [[_e(f"body {b['body']}"), _num(b["ours"]["volume_m3"]), _num(b["volume_m3"]),
+                 _num(b["relative_difference"]["volume"], 2), _num(b["relative_difference"]["cg"], 2),
+                 _num(b["relative_difference"]["inertia_cg"], 2), _e(b.get("likely_inexact") or "— (agree)")]
+                for b in d.get("cad_kernel", [])]
+        parts.append(
+            f"<section><h2>CAD input</h2><p>{_e(cad.get('format'))}, unit {_e(cad.get('unit'))}, cad_tolerance "
+            f"{_num(cad.get('cad_tolerance'), 3)} (chord {_num(cad.get('chord_m'), 3)} m); {_e(cad.get('integration'))}."
+            "</p>" + _table(rows, ["body", "volume m³ (bladesolid)", "volume m³ (CAD kernel)", "rel. diff. volume",
+                                   "CG", "inertia about CG", "likely inexact"]) + "</section>")
 
     ops = d.get("operating_points")
     if ops:

@@ -96,11 +96,16 @@ def compare_job(job, transform=None, reference_units=None, progress=None):
     limits = compare.read_limits(job.limits) if job.limits else None
     T = compare.read_transform(transform) if transform else None
     lumped = tuple(api.LumpedMass(n, m, np.asarray(p, float)) for n, m, p in job.lumped)
-    reference = api.load_blade(job.reference, reference_units or job.units, list(job.densities), lumped=lumped,
+    from .cad import declares_unit
+
+    # a STEP or IGES reference carries its own unit, a mesh takes the job's
+    ref_units = reference_units or (None if declares_unit(job.reference) else job.units)
+    reference = api.load_blade(job.reference, ref_units, list(job.densities), lumped=lumped,
                                frame=hub_frame_of(job), reference_radius_m=job.reference_radius_m,
                                reference_fraction=job.reference_fraction, elements=False, progress=progress,
-                               check=lambda b: check_against_blade(job, b))
-    repaired = read_mesh(job.mesh, job.units)
+                               check=lambda b: check_against_blade(job, b),
+                               cad_tolerance=job.cad_tolerance)
+    repaired = read_mesh(job.mesh, job.units, cad_tolerance=job.cad_tolerance)
     op = job.operating_points[0]
     result = compare.compare_blade(reference, [(b.vertices, b.faces) for b in repaired.bodies], op.rpm,
                                    blade_angle_deg=op.blade_angle_deg, pitch_change_deg=op.pitch_change_deg,
@@ -142,10 +147,14 @@ def run_review(job, progress=None, *, with_views: bool = True) -> Review:
                                   allowable_Pa=job.allowable_Pa)
     data["spanwise"] = span_mod.spanwise_rows(rv.span)
     data["spanwise_note"] = span_mod.SPAN_NOTE
-    if not blade.elements_exact:
+    if blade.field_resolution is not None:
         data["spanwise_note"] += (" The station cuts were made on the simplified copy of the surface used for the "
                                   "element fields (input.field_resolution), so they are close to, not exactly, "
                                   "those of the full surface.")
+    if blade.cad is not None:
+        data["spanwise_note"] += (" The station cuts were made on the straight triangulation of the CAD solid that "
+                                  "the mass elements fill (cad.elements_volume_rel_difference), so they are close to, "
+                                  "not exactly, those of the solid.")
 
     clock.start("fields")
     from . import fields as fields_mod

@@ -149,3 +149,38 @@ def test_the_readme_python_example_runs_and_prints_what_it_says(monkeypatch):
         for a, b in zip(_NUMBER.findall(g), _NUMBER.findall(w)):
             x, y = float(a.replace(",", "")), float(b.replace(",", ""))
             assert x == pytest.approx(y, rel=1e-3, abs=1e-3), (g, w)
+
+
+def test_a_cad_blade_takes_its_moments_from_the_curved_triangles(tmp_path):
+    # the circular-arc test loft (tests/cadhelp.py), turned into a hub frame whose origin is
+    # offset and whose thrust axis is tilted: the moments follow the frame exactly, the kernel's
+    # figures (exact for this loft) are reported beside them in the same frame, and the mass
+    # elements fill the straight triangles (not exact for the solid; their difference reported)
+    pytest.importorskip("gmsh")
+    from bladesolid.frame import hub_frame
+    from bladesolid.moments import moved
+
+    from .cadhelp import add_blade, write_model
+
+    path = tmp_path / "blade.step"
+    (volume_mm3, cg_mm, inertia_mm5), = write_model(path, lambda: add_blade(1000.0))
+    c, s = math.cos(0.1), math.sin(0.1)
+    frame = hub_frame(origin=(0.01, -0.02, 0.0), thrust_axis=(0.0, s, c), pitch_axis=(0.0, c, -s))
+    blade = api.load_blade(path, None, [f"{RHO} kg/m^3"], frame=frame, target_elements=3000)
+    assert blade.units == "mm" and not blade.elements_exact and blade.cad["format"] == "STEP"
+    R, t = frame.model_to_hub()
+    from bladesolid.cad import KernelFigures
+
+    kernel = moved(KernelFigures(volume_mm3 * 1e-9, cg_mm * 1e-3, inertia_mm5 * 1e-15).moments(RHO), R, t)
+    props = blade.mass_properties()
+    assert props.mass_kg == pytest.approx(kernel.mass, rel=1e-5)
+    np.testing.assert_allclose(props.cg_m, kernel.cg, atol=1e-5 * 0.2)
+    assert np.linalg.norm(props.inertia_cg_kgm2 - kernel.inertia_cg()) < 1e-5 * np.linalg.norm(kernel.inertia_cg())
+    (body,) = blade.cad["kernel"]
+    np.testing.assert_allclose(body["cg_m"], kernel.cg, atol=1e-12)
+    assert blade.solid_moments.mass == pytest.approx(blade.surface_moments.mass, rel=1e-15)
+    # the elements: the straight triangles' volume, exactly (TetGen keeps the surface)
+    assert blade.cad["elements_volume_rel_difference"] == pytest.approx(
+        blade.cad["tessellation_volume_rel_difference"], abs=1e-9)
+    assert -5e-3 < blade.cad["elements_volume_rel_difference"] < -1e-3
+    assert props.surface_check_method == "elements vs triangulated CAD surface" and props.surface_check_ok

@@ -336,3 +336,23 @@ def test_write_demo_writes_the_one_example_job_and_a_consistent_repair_scenario(
     assert Path(repair.reference).exists() and Path(repair.limits) == Path(paths["repair_limits"])
     assert read_limits(paths["repair_limits"]).source.startswith("Larkspur")
     assert tomllib.loads(demo.REPAIR_LIMITS)["source"].endswith("(invented)")
+
+
+def test_the_step_demo_job_is_the_example_job_on_the_step_blade(tmp_path):
+    # the same job as the example (every key but the mesh, its unit and the chord tolerance),
+    # reading the STEP blade, whose declared millimetre is the unit of the job's points
+    import tomllib
+
+    from bladesolid.cad import DEFAULT_CAD_TOLERANCE
+    from bladesolid.job import EXAMPLE_JOB, build_job
+
+    step, example = tomllib.loads(demo.step_job_text()), tomllib.loads(EXAMPLE_JOB)
+    assert step.pop("mesh") == "demo_blade.step" and example.pop("mesh") == "demo_blade.stl"
+    assert "units" not in step and example.pop("units") == "mm"
+    assert step.pop("cad_tolerance") == DEFAULT_CAD_TOLERANCE
+    assert step.pop("name").endswith("from STEP (invented)") and example.pop("name")
+    assert step == example
+    pytest.importorskip("gmsh")
+    (tmp_path / "demo_blade.step").write_bytes((MESHES / "demo_blade.step").read_bytes())
+    job = build_job(tomllib.loads(demo.step_job_text()), "job.toml", str(tmp_path))
+    assert job.units == "mm" and job.lumped[0][2] == pytest.approx((-0.010, 0.160, 0.030))

@@ -16,7 +16,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from bladesolid.errors import InputError
-from bladesolid.io import read_mesh
+from bladesolid.io import LoadedMesh, read_mesh, write_surface
 
 from .iohelp import EXTENSIONS, box, refused, sphere, surface_volume, tets, write_surface_as
 
@@ -49,9 +49,47 @@ def test_unknown_unit_is_refused(tmp_path):
 
 
 def test_unknown_extension(tmp_path):
-    path = tmp_path / "blade.step"
-    path.write_text("ISO-10303-21;")
-    refused(path, "unknown mesh format '.step'")
+    path = tmp_path / "blade.dxf"
+    path.write_text("0\nSECTION\n")
+    text = refused(path, "unknown mesh format '.dxf'")
+    assert "or a CAD file (.step, .stp, .iges, .igs, .brep)" in text
+
+
+def test_cad_files_go_to_the_cad_reader(tmp_path, monkeypatch):
+    # read_mesh hands STEP/IGES/BREP to bladesolid.cad.read_cad, with the units (None: the
+    # file's own) and the chord tolerance, and returns its bodies with the model as ``cad``
+    from bladesolid import cad
+
+    seen = {}
+
+    class Model:
+        file_format = "STEP"
+
+        def loaded_mesh(self):
+            return LoadedMesh(str(path), "in", (), (), "STEP", cad=self)
+
+    def fake(source, units, *, cad_tolerance=None, max_bytes=None):
+        seen.update(source=source, units=units, cad_tolerance=cad_tolerance)
+        return Model()
+
+    monkeypatch.setattr(cad, "read_cad", fake)
+    path = tmp_path / "blade.STP"
+    loaded = read_mesh(path, None, cad_tolerance=1e-4)
+    assert seen == {"source": str(path), "units": None, "cad_tolerance": 1e-4}
+    assert loaded.units == "in" and isinstance(loaded.cad, Model)
+    # a truncated STEP file is refused by the CAD reader itself
+    monkeypatch.undo()
+    bad = tmp_path / "cut.step"
+    bad.write_text("ISO-10303-21;\nDATA;\n")
+    refused(bad, "STEP file is truncated")
+
+
+def test_a_mesh_without_units_is_refused(tmp_path):
+    path = tmp_path / "tet.stl"
+    write_surface(path, np.array([[0, 0, 0], [10, 0, 0], [0, 10, 0], [0, 0, 10]], float),
+                  np.array([[0, 2, 1], [0, 1, 3], [1, 2, 3], [0, 3, 2]]))
+    with pytest.raises(InputError, match="no length unit given"):
+        read_mesh(path, None)
 
 
 def test_two_bodies_in_one_file_by_descending_volume(tmp_path):

@@ -170,3 +170,55 @@ def test_fuzz_job_parser_only_raises_input_error(data):
         hub_frame_of(job)
     except InputError:
         pass
+
+
+# --------------------------------------------------------------------------- CAD input (docs/CONVENTIONS.md §9)
+
+
+def _step_file(path, unit_record="SI_UNIT(.MILLI.,.METRE.)"):
+    """A STEP text with one declared length unit (no geometry: the job reads only the unit)."""
+    path.write_text("ISO-10303-21;\nHEADER;\nENDSEC;\nDATA;\n#1=(GEOMETRIC_REPRESENTATION_CONTEXT(3) "
+                    "GLOBAL_UNIT_ASSIGNED_CONTEXT((#2)) REPRESENTATION_CONTEXT('',''));\n"
+                    f"#2=(LENGTH_UNIT() NAMED_UNIT(*) {unit_record});\nENDSEC;\nEND-ISO-10303-21;\n")
+    return path
+
+
+def test_cad_tolerance_key_and_flag(tmp_path):
+    job = build_job(minimal(cad_tolerance=1e-3), "job.toml", str(tmp_path))
+    assert job.cad_tolerance == 1e-3
+    assert build_job(minimal(), "job.toml", str(tmp_path)).cad_tolerance is None
+    job = build_job(minimal(cad_tolerance=1e-3), "job.toml", str(tmp_path), {"cad_tolerance": 5e-4})
+    assert job.cad_tolerance == 5e-4
+    for bad in (0.5, 0.0, "fine", True):
+        with pytest.raises(InputError, match=r"^job.toml: key 'cad_tolerance': "):
+            build_job(minimal(cad_tolerance=bad), "job.toml", str(tmp_path))
+    with pytest.raises(InputError, match=r"^--cad-tolerance: must lie between"):
+        build_job(minimal(), "job.toml", str(tmp_path), {"cad_tolerance": 1.0})
+
+
+def test_step_and_iges_jobs_take_the_unit_the_file_declares(tmp_path):
+    # the inch as a conversion-based unit of 25.4 mm (ISO 10303-41; exact inch definition)
+    _step_file(tmp_path / "blade_mm.step")
+    _step_file(tmp_path / "blade_in.stp", "CONVERSION_BASED_UNIT('INCH',#3) LENGTH_UNIT() NAMED_UNIT(*)")
+    (tmp_path / "blade_in.stp").write_text((tmp_path / "blade_in.stp").read_text().replace(
+        "ENDSEC;\nEND", "#3=LENGTH_MEASURE_WITH_UNIT(LENGTH_MEASURE(25.4),#4);\n"
+        "#4=(LENGTH_UNIT() NAMED_UNIT(*) SI_UNIT(.MILLI.,.METRE.));\nENDSEC;\nEND"))
+    data = {"mesh": "blade_mm.step", "material": "al-2025-t6", "hub_centre": [0, 10, 0]}
+    job = build_job(data, "job.toml", str(tmp_path))
+    assert job.units == "mm" and job.hub_centre_m == pytest.approx((0.0, 0.01, 0.0))
+    job = build_job({**data, "mesh": "blade_in.stp"}, "job.toml", str(tmp_path))
+    assert job.units == "in" and job.hub_centre_m == pytest.approx((0.0, 0.254, 0.0))
+    # a units key is kept (the reader checks that it agrees with the file)
+    assert build_job({**data, "units": "mm"}, "job.toml", str(tmp_path)).units == "mm"
+
+
+def test_jobs_without_units_for_files_that_carry_none(tmp_path):
+    for mesh, what in (("blade.stl", "a mesh file"), ("blade.brep", "a BREP file")):
+        with pytest.raises(InputError, match=f"missing required key 'units'.*{what} carries no unit"):
+            build_job({"mesh": mesh, "material": "al-2025-t6"}, "job.toml", str(tmp_path))
+    # a STEP file that is missing, or declares a unit bladesolid has no name for
+    with pytest.raises(InputError, match="gone.step: file not found"):
+        build_job({"mesh": "gone.step", "material": "al-2025-t6"}, "job.toml", str(tmp_path))
+    _step_file(tmp_path / "micro.step", "SI_UNIT(.MICRO.,.METRE.)")
+    with pytest.raises(InputError, match=r"micro.step: declares the length unit SI_UNIT\(.MICRO.,.METRE.\)"):
+        build_job({"mesh": "micro.step", "material": "al-2025-t6"}, "job.toml", str(tmp_path))

@@ -53,6 +53,7 @@ def cmd_mass(args) -> int:
                   "self-intersecting or overlapping — check the mesh")
     if args.json:
         report.atomic_write_text(args.json, report.dumps(report.mass_report(blade, props)), args.force)
+    printing.print_cad(printing.console(), blade, args.us)
     printing.print_mass(printing.console(), blade, props, args.us)
     return 0
 
@@ -91,6 +92,7 @@ def cmd_loads(args) -> int:
                                  operating_rpm=ops[0].rpm, force=args.force)
     if args.json:
         report.atomic_write_text(args.json, report.dumps(data), args.force)
+    printing.print_cad(printing.console(), blade, args.us)
     printing.print_loads(printing.console(), blade, data, args.us)
     return 0
 
@@ -115,6 +117,7 @@ def cmd_check(args) -> int:
             prog.stop()
     printing.warn(err, rv.blade)
     con = printing.console()
+    printing.print_cad(con, rv.blade, args.us)
     printing.print_loads(con, rv.blade, rv.report, args.us)
     con.print(f"review written to [bold]{printing.esc(args.out)}[/bold]: " + ", ".join(rv.files))
     con.print(f"open {printing.esc(os.path.join(args.out, 'report.html'))} in a browser for the whole review")
@@ -139,6 +142,10 @@ def cmd_demo(args) -> int:
     printing.console().print(
         f"next: the repair scenario — {printing.esc(prog)} check {printing.esc(paths['repair_job'])} "
         f"--out {printing.esc(os.path.join(args.dir, 'repair-review'))}")
+    if "step_job" in paths:
+        printing.console().print(
+            f"the same blade as a STEP solid: {printing.esc(prog)} check {printing.esc(paths['step_job'])} "
+            f"--out {printing.esc(os.path.join(args.dir, 'step-review'))}")
     return code
 
 
@@ -184,6 +191,7 @@ def cmd_span(args) -> int:
         report.atomic_write_text(args.csv, report.csv_text(spanwise_rows(table, flat=True)), args.force)
     if args.plot:
         plot_span(table, args.plot, args.force)
+    printing.print_cad(printing.console(), blade, args.us)
     printing.print_span(printing.console(), blade, table, rows, op, args.us)
     return 0
 

@@ -28,6 +28,7 @@ PARAMETER_FLAGS = {
     "rpm": "--rpm",
     "target_elements": "--elements",
     "max_element_volume_m3": "--element-size",
+    "cad_tolerance": "--cad-tolerance",
 }
 _NAMED_IN_TEXT = re.compile(r"\b(" + "|".join(re.escape(k) for k in PARAMETER_FLAGS if "_" in k) + r")\b")
 
@@ -53,7 +54,7 @@ def job_keys(args) -> dict:
     for key in ("units", "name", "hub_centre", "thrust_axis", "pitch_axis", "pitch_point", "precone",
                 "rotation", "blades", "reference_radius", "reference_fraction", "rpm", "blade_angle",
                 "pitch_change", "sweep", "stations", "allowable", "elements", "element_size", "field_faces",
-                "reference", "limits", "rpm_sweep", "proof_factor", "rated_rpm", "angle_line"):
+                "reference", "limits", "rpm_sweep", "proof_factor", "rated_rpm", "angle_line", "cad_tolerance"):
         v = getattr(args, key, None)
         if v is not None:
             out[key] = v
@@ -87,8 +88,9 @@ def job_of(args):
     if str(args.input).lower().endswith(".toml"):
         return load_job(args.input, flags)
     flags["mesh"] = args.input
-    if "units" not in flags:
-        raise InputError(args.input, "no length unit given: add --units mm (or cm, m, in, ft); a mesh file carries no unit")
+    if "units" not in flags and not _declares_unit(args.input):  # STEP/IGES: the file's own (§9)
+        what = "a BREP file" if str(args.input).lower().endswith(".brep") else "a mesh file"
+        raise InputError(args.input, f"no length unit given: add --units mm (or cm, m, in, ft); {what} carries no unit")
     return build_job({}, "command line", ".", flags)
 
 
@@ -103,6 +105,14 @@ OUTPUT_EXTENSIONS = {
     "--vtu": (".vtu", "a VTU element file"),
     "--html": (".html", "an HTML page"),
 }
+
+
+def _declares_unit(path) -> bool:
+    from ..cad import declares_unit
+
+    return declares_unit(path)
+
+
 
 
 def check_outputs(force: bool, *outputs) -> None:

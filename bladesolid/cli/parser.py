@@ -9,6 +9,7 @@ from __future__ import annotations
 import argparse
 
 from .. import CAUTION, __version__
+from ..cad import DEFAULT_CAD_TOLERANCE
 from . import commands
 from .options import UsageError
 
@@ -33,8 +34,13 @@ class _Tagged(argparse.Action):
 def _add_blade_flags(p, job_allowed: bool = True, positional: bool = True, json_flag: bool = True):
     if positional:
         p.add_argument("input", metavar="JOB.toml|MESH" if job_allowed else "MESH",
-                       help="a job file (.toml) or a blade mesh (STL/OBJ/PLY/OFF, .msh/.vtu/.inp)")
-    p.add_argument("--units", help="length unit of the mesh: mm, cm, m, in or ft (required for a mesh)")
+                       help="a job file (.toml), a blade mesh (STL/OBJ/PLY/OFF, .msh/.vtu/.inp) or a CAD file "
+                            "(STEP/IGES/BREP)")
+    p.add_argument("--units", help="length unit of the mesh: mm, cm, m, in or ft (required for a mesh and BREP; "
+                                   "STEP and IGES declare theirs, which a unit given must match)")
+    p.add_argument("--cad-tolerance", type=float, metavar="F",
+                   help="chord tolerance of a CAD file's triangulation, a fraction of the model's diagonal "
+                        f"(default {DEFAULT_CAD_TOLERANCE:g})")
     p.add_argument("--density", action=_Tagged, dest="densities", metavar="QUANTITY",
                    help='density with its unit, e.g. "2810 kg/m^3" (bare number: kg/m^3); once, or once per body')
     p.add_argument("--material", action=_Tagged, dest="densities", metavar="NAME",

@@ -16,7 +16,7 @@ import numpy as np
 
 from .. import CAUTION
 
-__all__ = ["STAGE_LABELS", "console", "conv", "esc", "fmt", "live_console", "print_batch", "print_compare",
+__all__ = ["STAGE_LABELS", "console", "conv", "esc", "fmt", "live_console", "print_batch", "print_cad", "print_compare",
            "print_loads", "print_mass", "print_match", "print_materials", "print_span", "progress", "release",
            "stage_progress", "stderr_session", "verbose", "warn"]
 
@@ -264,6 +264,47 @@ def print_mass(con, blade, props, us):
     t.add_row("surface check (relative)", f"{props.surface_check_rel_error:.1e}", "", "", props.surface_check_method)
     con.print(t)
     con.print(f"[dim]{CAUTION}[/dim]")
+
+
+def print_cad(con, blade, us):
+    """For a blade read from a CAD file: how it was read, and per body the CAD kernel's own
+    figures beside bladesolid's with their relative differences (hub frame). Nothing otherwise."""
+    from rich.table import Table
+
+    c = blade.cad
+    if c is None:
+        return
+    cv, lab = conv(us)
+    unit = f"unit {esc(c['unit'])}" + (f" (declared: {esc(c['file_unit'])})" if c.get("file_unit") else " (given)")
+    con.print(f"[bold]CAD input[/bold] — {esc(c['format'])}, {unit}, cad_tolerance {c['cad_tolerance']:g} "
+              f"(chord {fmt(cv(c['chord_m'], 'length'), 3)} {lab('length')}), {sum(c['triangles']):,} triangles; "
+              "mass moments from curved six-node triangles on the CAD geometry")
+    t = Table(show_header=True)
+    for name, just in (("body", "left"), ("figure", "left"), ("bladesolid", "right"), ("CAD kernel", "right"),
+                       ("rel. difference", "right"), ("likely inexact", "left")):
+        t.add_column(name, justify=just)
+    for b in c["kernel"]:
+        ours, diff = b["ours"], b["relative_difference"]
+        side = {None: "— (agree)", "kernel": "CAD kernel", "either": "either"}.get(b["likely_inexact"], "")
+        rows = (("volume", lab("volume"), cv(ours["volume_m3"], "volume"), cv(b["volume_m3"], "volume"), "volume"),
+                ("CG", lab("length"), cv(np.asarray(ours["cg_m"]), "length"), cv(np.asarray(b["cg_m"]), "length"), "cg"),
+                ("I about CG, diagonal", lab("inertia"), cv(np.diagonal(ours["inertia_cg_kgm2"]), "inertia"),
+                 cv(np.diagonal(b["inertia_cg_kgm2"]), "inertia"), "inertia_cg"))
+        for i, (label, unit_label, mine, theirs, key) in enumerate(rows):
+            show = (lambda v: fmt(float(v), 7)) if np.ndim(mine) == 0 else (
+                lambda v: ", ".join(fmt(float(x), 6) for x in v))
+            t.add_row(f"body {b['body']}" if i == 0 else "", f"{label} ({unit_label})", show(mine), show(theirs),
+                      f"{diff[key]:.1e}", side if i == 0 else "")
+    con.print(t)
+    from ..cad import CURVED_ERROR_SHARE
+
+    est = max(b["error_estimate"] for b in c["kernel"])
+    con.print(f"[dim]bladesolid's own error estimate {est:.1e} ({CURVED_ERROR_SHARE:g} of the curved triangles' "
+              "difference from straight ones); the kernel integrates B-spline faces inexactly, so a difference well "
+              "above the estimate is likely the kernel's[/dim]")
+    if "elements_volume_rel_difference" in c:
+        con.print(f"[dim]the mass elements fill the straight triangles (element fields, spanwise cuts, views): volume "
+                  f"{100 * c['elements_volume_rel_difference']:+.3g} % from the solid's[/dim]")
 
 
 def print_loads(con, blade, data, us):

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import os
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -40,6 +40,9 @@ class LoadedMesh:
     """What :func:`read_mesh` returns: the bodies of one file and the warnings raised.
 
     ``file_format`` is the format actually read (e.g. ``"binary STL"``, ``"Gmsh"``).
+    ``cad`` is the :class:`bladesolid.cad.CadModel` of a CAD file (None for meshes): its
+    curved triangles carry the solid's exact mass moments, the bodies hold the straight
+    triangulation that the mass elements fill.
     """
 
     path: str
@@ -47,20 +50,27 @@ class LoadedMesh:
     bodies: tuple[Body, ...]
     warnings: tuple[str, ...] = field(default_factory=tuple)
     file_format: str = ""
+    cad: object | None = None
 
 
 
-def read_mesh(path, units: str, *, max_bytes: int | None = None) -> LoadedMesh:
+def read_mesh(path, units: str | None, *, max_bytes: int | None = None,
+              cad_tolerance: float | None = None) -> LoadedMesh:
     """Read a blade solid, validate it and return its closed bodies in metres.
 
     Parameters
     ----------
     path : str or os.PathLike
-        A surface (``.stl .obj .ply .off``) or tetrahedral volume mesh (``.msh .vtu .inp``).
-    units : str
-        The length unit of the file's coordinates, one of ``LENGTH_UNITS``.
+        A surface (``.stl .obj .ply .off``), a tetrahedral volume mesh (``.msh .vtu .inp``)
+        or a CAD file (``.step .stp .iges .igs .brep``, read by :func:`bladesolid.cad.read_cad`).
+    units : str or None
+        The length unit of the file's coordinates, one of ``LENGTH_UNITS``. A STEP or IGES
+        file declares its own: None takes it, a unit given must agree (docs/CONVENTIONS.md §9).
     max_bytes : int, optional
         Refuse files larger than this (default :data:`DEFAULT_MAX_BYTES`, 2 GiB).
+    cad_tolerance : float, optional
+        Chord tolerance of a CAD file's triangulation, a fraction of the model's bounding-box
+        diagonal (default :data:`bladesolid.cad.DEFAULT_CAD_TOLERANCE`); ignored for meshes.
 
     Returns
     -------
@@ -88,10 +98,15 @@ def read_mesh(path, units: str, *, max_bytes: int | None = None) -> LoadedMesh:
     ('...bounding box is 10 mm long...',)
     """
     source = os.fsdecode(os.fspath(path))
+    ext = os.path.splitext(source)[1].lower()
+    if ext in _CAD_EXTENSIONS:
+        return _read_cad(source, units, max_bytes, cad_tolerance)
+    if units is None:
+        raise InputError(source, "no length unit given: give units (mm, cm, m, in or ft); a mesh file carries no "
+                                 "unit")
     scale = length_scale(units, source)  # unknown unit -> InputError naming the file
     limit = DEFAULT_MAX_BYTES if max_bytes is None else int(max_bytes)
     size = check_file(source, limit)
-    ext = os.path.splitext(source)[1].lower()
     warnings: list[str] = []
 
     if ext in SURFACE_FORMATS:
@@ -104,8 +119,8 @@ def read_mesh(path, units: str, *, max_bytes: int | None = None) -> LoadedMesh:
         raise InputError(
             source,
             f"unknown mesh format {ext or '(no extension)'!r}; expected a surface "
-            f"({', '.join(SURFACE_FORMATS)}) or a tetrahedral volume mesh "
-            f"({', '.join(VOLUME_FORMATS)})",
+            f"({', '.join(SURFACE_FORMATS)}), a tetrahedral volume mesh "
+            f"({', '.join(VOLUME_FORMATS)}) or a CAD file ({', '.join(_CAD_EXTENSIONS)})",
         )
 
     # bodies are (raw vertices, faces, tets, volume_raw, first, group) in the declared unit
@@ -119,3 +134,23 @@ def read_mesh(path, units: str, *, max_bytes: int | None = None) -> LoadedMesh:
     if size_warning:
         warnings.append(size_warning)
     return LoadedMesh(source, units, out, tuple(warnings), fmt)
+
+
+#: CAD extensions (:data:`bladesolid.cad.CAD_FORMATS`; listed here so that reading a mesh
+#: does not import the CAD module).
+_CAD_EXTENSIONS = (".step", ".stp", ".iges", ".igs", ".brep")
+
+
+def _read_cad(source: str, units: str | None, max_bytes: int | None, cad_tolerance) -> LoadedMesh:
+    """A CAD file through :func:`bladesolid.cad.read_cad`, as a :class:`LoadedMesh`. A BREP
+    file, whose unit the user gives, gets the size plausibility warning of meshes (STEP and
+    IGES declare theirs)."""
+    from ..cad import read_cad
+
+    model = read_cad(source, units, cad_tolerance=cad_tolerance, max_bytes=max_bytes)
+    loaded = model.loaded_mesh()
+    size_warning = (plausibility_warning(loaded.bodies, loaded.units, length_scale(loaded.units, source))
+                    if model.file_format == "BREP" else None)
+    if size_warning:
+        loaded = replace(loaded, warnings=(*loaded.warnings, size_warning))
+    return loaded
