@@ -34,7 +34,8 @@ from .units import rpm_to_rad_s
 
 __all__ = ["DEFAULT_FIELD_FACES", "SURFACE_CHECK_TOLERANCE", "Blade", "BodyMaterial", "LumpedMass", "MassProperties",
            "blade_from_job", "blade_from_surfaces", "load_blade", "loads_at", "loads_for_job", "mass_properties",
-           "pitch_sweep", "principal_axes", "resolve_blade_angle", "resolve_materials", "surface_check"]
+           "pitch_sweep", "principal_axes", "resolve_blade_angle", "resolve_materials", "surface_check",
+           "surface_options"]
 
 
 @dataclass(frozen=True)
@@ -72,6 +73,16 @@ class Blade:
     element_nodes, element_tets, element_body : the tetrahedral mass elements (hub frame)
     lumped_moments : moments of the lumped masses, hub frame
     modelled_angle : the blade angle measured on the modelled solid (None if not measured)
+    geometry : what the loader did and found (:attr:`bladesolid.io.LoadedMesh.geometry`:
+      welding, bodies, cavities, inserts), SI; None for surfaces given directly
+    repairs : None when no repair was asked; else the changes made (one dict each, see
+      :attr:`bladesolid.io.LoadedMesh.repairs`), empty when nothing needed mending
+    mended_surface : ``(vertices (n, 3) in the file's unit, faces (m, 3), part (n,) or None)``
+      of the mended surface when the repair changed anything (for the record), else None
+
+    A body's surface is the whole boundary of its material: outer shell, cavities (wound
+    into the void) and the seats of its inserts (docs/CONVENTIONS.md §8); its closed-surface
+    integral is the body's own moments, and its elements fill exactly its material.
     """
 
     name: str
@@ -92,6 +103,9 @@ class Blade:
     element_body: np.ndarray | None = None
     field_resolution: dict | None = None
     warnings: tuple[str, ...] = field(default_factory=tuple)
+    geometry: dict | None = None
+    repairs: tuple | None = None
+    mended_surface: tuple | None = None
 
     @property
     def surface_moments(self) -> Moments:
@@ -168,10 +182,12 @@ class Blade:
         return element_fields(self, rpm, blade_angle_deg, pitch_change_deg=pitch_change_deg)
 
     def compare(self, repaired, rpm: float, blade_angle_deg: float | None = None,
-                pitch_change_deg: float | None = None, *, units: str | None = None, limits=None, **options):
+                pitch_change_deg: float | None = None, *, units: str | None = None, limits=None,
+                weld_tol: float | None = None, repair: bool = False, repair_limit_pct: float = 1.0, **options):
         """:func:`bladesolid.compare.compare_blade` with this blade as the reference.
 
-        repaired : a mesh file (read in ``units``, default this blade's) or its surfaces
+        repaired : a mesh file (read in ``units``, default this blade's, with ``weld_tol``,
+          ``repair`` and ``repair_limit_pct`` as in :func:`load_blade`) or its surfaces
           ``[(vertices (n, 3) m, faces (m, 3)), ...]`` in their own frame
         limits : a limits file or :class:`bladesolid.compare.Limits` (None: nothing checked)
         options : the keywords of :func:`~bladesolid.compare.compare_blade` (``transform``, ...)
@@ -182,7 +198,9 @@ class Blade:
             from .io import read_mesh
 
             path = os.fspath(repaired)
-            repaired = [(b.vertices, b.faces) for b in read_mesh(path, units or self.units).bodies]
+            loaded = read_mesh(path, units or self.units, weld_tol=weld_tol, repair=repair,
+                               repair_limit_pct=repair_limit_pct)
+            repaired = [(b.vertices, b.faces) for b in loaded.bodies]
             options.setdefault("repaired_source", path)
             options.setdefault("repaired_name", os.path.basename(path))
         if isinstance(limits, (str, os.PathLike)):
@@ -191,15 +209,23 @@ class Blade:
                              limits=limits, **options)
 
 
-def resolve_materials(specs, n_bodies: int, source: str = "densities") -> tuple[BodyMaterial, ...]:
+def resolve_materials(specs, n_bodies: int, source: str = "densities", inserts=()) -> tuple[BodyMaterial, ...]:
     """Densities for ``n_bodies`` bodies from a list of ``("density", text)`` or
-    ``("material", name)`` specs: one spec for all bodies, or one per body in order."""
+    ``("material", name)`` specs: one spec for all bodies, or one per body in order.
+
+    inserts : ``[(insert name, host name), ...]`` of the bodies that are inserts; an insert is
+    its own material, so with inserts one density for all is refused, naming the insert."""
     from .materials import material
     from .units import parse_density
 
     specs = list(specs or [])
     if not specs:
         raise InputError(source, "no density given: give a density with its unit (\"2810 kg/m^3\") or a material name")
+    inserts = list(inserts)
+    if len(specs) == 1 and n_bodies > 1 and inserts:
+        name, host = inserts[0]
+        raise InputError(source, f"one density given for {n_bodies} bodies, but {name} is an insert nested in {host} "
+                                 f"(a body of its own material): give one density per body, in order (body 1 first)")
     if len(specs) not in (1, n_bodies):
         raise InputError(source, f"{len(specs)} densities given for {n_bodies} bodies; give one, or one per body")
     out = []
@@ -231,6 +257,9 @@ def load_blade(
     field_faces: int | None = None,
     progress=None,
     angle_line: str = "chord",
+    weld_tol: float | None = None,
+    repair: bool = False,
+    repair_limit_pct: float = 1.0,
 ) -> Blade:
     """Load, validate, mesh and integrate a blade.
 
@@ -249,6 +278,11 @@ def load_blade(
     progress : optional callable(stage: str) told when each stage starts
     angle_line : the reference line of the modelled blade angle, ``"chord"`` (nose to tail) or
       ``"face"`` (a straightedge on the face); both angles are kept (docs/CONVENTIONS.md §2)
+    weld_tol : weld vertices of a surface closer than this, in the mesh unit, always (default:
+      at 1e-6 of the bounding-box diagonal, only when the surface is open as read)
+    repair : mend a damaged surface first (:func:`bladesolid.repair.repair_surface` per part),
+      every change in ``Blade.repairs``; refused when the volume changes by more than
+      ``repair_limit_pct`` percent (docs/CONVENTIONS.md §8)
 
     A flat bar 40 × 600 × 10 mm from r = 100 mm to 700 mm, aluminium, at 1000 rpm:
 
@@ -269,12 +303,12 @@ def load_blade(
     say = progress or (lambda stage: None)
     frame = frame or hub_frame()
     say("load")
-    loaded = read_mesh(path, units)
+    loaded = read_mesh(path, units, weld_tol=weld_tol, repair=repair, repair_limit_pct=repair_limit_pct)
     bodies = loaded.bodies
     if densities is not None and not isinstance(densities, (list, tuple)):
         densities = [densities]
     specs = [d if isinstance(d, tuple) else ("density", d) for d in (densities or [])]
-    mats = resolve_materials(specs, len(bodies))
+    mats = resolve_materials(specs, len(bodies), inserts=[(b.name, b.host) for b in bodies if b.host])
     R, t = frame.model_to_hub()
     if model_transform is not None:
         T = np.asarray(model_transform, dtype=float)
@@ -286,6 +320,7 @@ def load_blade(
         reference_fraction=reference_fraction, name=name or str(path).replace("\\", "/").rsplit("/", 1)[-1],
         source=str(path), units=units, warnings=loaded.warnings, angle_line=angle_line,
     )
+    blade = replace(blade, geometry=loaded.geometry, repairs=loaded.repairs, mended_surface=loaded.mended)
     if all(b.tets is not None for b in bodies):
         elements = True  # a volume mesh brings its elements: no meshing, so always use them
     if not elements:
@@ -329,15 +364,19 @@ def blade_from_surfaces(surfaces, materials, frame: HubFrame, *, lumped=(), refe
     reference_radius_m : reference station of the blade angle (default: fraction × tip radius)
     angle_line : reference line of the blade angle, ``"chord"`` or ``"face"`` (docs/CONVENTIONS.md §2)
 
-    Each body's moments are the exact closed-surface integral times its density; the blade
-    angle is measured at the reference station (a warning, not an error, when it cannot be).
+    Each body's moments are the exact closed-surface integral times its density; a body whose
+    tensor no solid can have (a surface that crosses itself or is wound inside out) is refused
+    (:func:`bladesolid.moments.check_physical_inertia`), never reported. The blade angle is
+    measured at the reference station (a warning, not an error, when it cannot be).
     """
-    from .moments import surface_volume_moments
+    from .moments import check_physical_inertia, surface_volume_moments
 
     surfaces = tuple((np.asarray(v, dtype=float), np.asarray(f, dtype=np.int64)) for v, f in surfaces)
     materials = tuple(materials)
     warnings = list(warnings)
     body_moments = tuple(surface_volume_moments(v, f).scaled(m.density_kg_m3) for (v, f), m in zip(surfaces, materials))
+    for i, m in enumerate(body_moments):
+        check_physical_inertia(m, source if len(body_moments) == 1 else f"{source}: body {i + 1}")
     lumped = tuple(lumped)
     lumped_moments = zero_moments()
     for p in lumped:
@@ -519,6 +558,17 @@ def pitch_sweep(blade: Blade, rpm: float, lo_deg: float, hi_deg: float, step_deg
 # --- from a job ---------------------------------------------------------------------------
 
 
+def surface_options(job) -> dict:
+    """The loader's keywords of a job (``weld_tol`` in the mesh unit, ``repair``,
+    ``repair_limit_pct``) for :func:`load_blade` and :func:`bladesolid.io.read_mesh`."""
+    from .units import length_scale
+
+    weld_m = getattr(job, "weld_m", None)
+    return {"weld_tol": None if weld_m is None else weld_m / length_scale(job.units, job.source),
+            "repair": bool(getattr(job, "repair", False)),
+            "repair_limit_pct": float(getattr(job, "repair_limit_pct", 1.0))}
+
+
 def blade_from_job(job, *, elements: bool = True, model_transform=None, progress=None) -> Blade:
     """Load the blade a validated :class:`bladesolid.job.Job` describes (``model_transform``:
     an optional 4x4 applied to the mesh first, see :func:`load_blade`)."""
@@ -542,6 +592,7 @@ def blade_from_job(job, *, elements: bool = True, model_transform=None, progress
         field_faces=job.field_faces,
         progress=progress,
         angle_line=job.angle_line,
+        **surface_options(job),
     )
     if job.pitch_point_m is not None:
         check_pitch_point(frame, blade.moments.cg, blade.tip_radius_m, f"{job.source}")

@@ -110,6 +110,9 @@ KEYS: dict[str, str] = {
     "field_faces": "--field-faces",
     "reference": "--reference",
     "limits": "--limits",
+    "weld": "--weld",
+    "repair": "--repair",
+    "repair_limit": "--repair-limit",
     "operating_point": "",
     "lumped_mass": "",
     "counterweight": "",
@@ -177,6 +180,9 @@ class Job:
     reference: str | None = None
     limits: str | None = None
     set_reports: tuple = ()
+    weld_m: float | None = None  # weld distance (key ``weld``, given in the mesh unit), m
+    repair: bool = False
+    repair_limit_pct: float = 1.0
 
 
 def _parse_range(text, source: str, key: str) -> tuple[float, float, float]:
@@ -480,6 +486,8 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
             r if os.path.isabs(r) else os.path.join(base_dir, r) for r in t.get("reports", []) if isinstance(r, str)
         )
 
+    weld, repair, repair_limit = _surface_keys(merged, w, scale)
+
     return Job(
         source=source,
         mesh=path_of("mesh"),
@@ -511,7 +519,30 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
         reference=path_of("reference") if "reference" in merged else None,
         limits=path_of("limits") if "limits" in merged else None,
         set_reports=set_reports,
+        weld_m=weld,
+        repair=repair,
+        repair_limit_pct=repair_limit,
     )
+
+
+def _surface_keys(merged: dict, w, scale: float):
+    """``weld`` (a distance >= 0 in the mesh unit, returned in m), ``repair`` (true/false) and
+    ``repair_limit`` (percent, above 0 and at most 100) of a job (docs/CONVENTIONS.md §8)."""
+    weld = None
+    if "weld" in merged:
+        weld = _num(merged["weld"], w("weld"), "weld")
+        if weld < 0:
+            raise InputError(w("weld"), f"must be a distance >= 0 in the mesh unit, got {weld}")
+        weld *= scale
+    repair = merged.get("repair", False)
+    if not isinstance(repair, bool):
+        raise InputError(w("repair"), f"must be true or false, got {repair!r}")
+    limit = 1.0
+    if "repair_limit" in merged:
+        limit = _num(merged["repair_limit"], w("repair_limit"), "repair_limit")
+        if not 0 < limit <= 100:
+            raise InputError(w("repair_limit"), f"must be a percentage above 0 and at most 100, got {limit}")
+    return weld, repair, limit
 
 
 def load_job(path, flags: dict | None = None) -> Job:

@@ -96,10 +96,16 @@ def compare_job(job, transform=None, reference_units=None, progress=None):
     limits = compare.read_limits(job.limits) if job.limits else None
     T = compare.read_transform(transform) if transform else None
     lumped = tuple(api.LumpedMass(n, m, np.asarray(p, float)) for n, m, p in job.lumped)
+    options = api.surface_options(job)
+    if reference_units and options["weld_tol"] is not None:  # the weld distance is given in the mesh's unit
+        from .units import length_scale
+
+        options["weld_tol"] = job.weld_m / length_scale(reference_units, "--reference-units")
     reference = api.load_blade(job.reference, reference_units or job.units, list(job.densities), lumped=lumped,
                                frame=hub_frame_of(job), reference_radius_m=job.reference_radius_m,
-                               reference_fraction=job.reference_fraction, elements=False, progress=progress)
-    repaired = read_mesh(job.mesh, job.units)
+                               reference_fraction=job.reference_fraction, elements=False, progress=progress,
+                               **options)
+    repaired = read_mesh(job.mesh, job.units, **api.surface_options(job))
     op = job.operating_points[0]
     result = compare.compare_blade(reference, [(b.vertices, b.faces) for b in repaired.bodies], op.rpm,
                                    blade_angle_deg=op.blade_angle_deg, pitch_change_deg=op.pitch_change_deg,
@@ -157,9 +163,11 @@ def run_review(job, progress=None, *, with_views: bool = True) -> Review:
 
     if comparison is not None:
         from . import compare as compare_mod
+        from .report import surface_sections
 
         rv.comparison, rv.reference = comparison, reference
         data["comparison"] = compare_mod.comparison_section(comparison)
+        data.update(surface_sections(reference, "reference_"))
         data["input"]["reference_mesh"] = job.reference
         data["input"]["registered_to_reference"] = True
     if job.set_reports:
@@ -379,6 +387,15 @@ def write_review(rv: Review, folder, force: bool = False, progress=None, with_vi
             images["surface deviation of this blade from the reference (after registration)"] = files["deviation.png"]
             data["comparison"]["deviation_png"] = "deviation.png"
 
+    for blade, key in ((rv.blade, "geometry"), (rv.reference, "reference_geometry")):
+        name = mended_name(blade, files)
+        if name:
+            from .io import stl_bytes
+
+            files[name] = stl_bytes(*blade.mended_surface)
+            if isinstance(data.get(key), dict):
+                data[key]["repaired_surface"] = name
+
     clock.start("report")
     data["timings_s"] = {**rv.timings_s, **{f"write_{k}": v for k, v in clock.timings.items()}}
     names = sorted(list(files) + ["report.json", "report.html"])
@@ -390,6 +407,19 @@ def write_review(rv: Review, folder, force: bool = False, progress=None, with_vi
                 fh.write(blob)
     clock.stop()
     return names
+
+
+def mended_name(blade, taken=()) -> str | None:
+    """The file name of a blade's mended surface in an output folder, ``<mesh stem>_repaired.stl``
+    (``-2``, ``-3``... when taken); None when the repair changed nothing or was not asked."""
+    if blade is None or getattr(blade, "mended_surface", None) is None:
+        return None
+    stem = os.path.splitext(os.path.basename(str(blade.source)))[0] or "mesh"
+    name, k = f"{stem}_repaired.stl", 1
+    while name in taken:
+        k += 1
+        name = f"{stem}_repaired-{k}.stl"
+    return name
 
 
 def _vtu_bytes(views, grid) -> bytes:

@@ -66,12 +66,19 @@ def open_root():
     return v, f[~root[f].all(axis=1)]
 
 
+def on_disk(vertices) -> np.ndarray:
+    """Coordinates as a binary STL stores them (float32), back in float64: references are
+    computed on what the file holds."""
+    return np.asarray(vertices, np.float32).astype(np.float64)
+
+
 def shank_cylinder(radius, y0, y1, sections=48):
     """A closed cylinder about the demo blade's pitch axis (the y axis through x = z = 0),
-    from r = y0 to y1 mm, wound outward (trimesh)."""
+    from r = y0 to y1 mm, wound outward (trimesh), its coordinates as a binary STL holds them."""
     c = trimesh.creation.cylinder(radius=radius, height=y1 - y0, sections=sections)
     c.apply_transform(trimesh.transformations.rotation_matrix(-np.pi / 2, [1, 0, 0]))  # z axis -> y axis
     c.apply_translation([0.0, 0.5 * (y0 + y1), 0.0])
+    c = trimesh.Trimesh(on_disk(c.vertices), c.faces, process=False)
     assert c.is_watertight and c.volume > 0
     return c
 
