@@ -34,7 +34,8 @@ from .units import rpm_to_rad_s
 
 __all__ = ["DEFAULT_FIELD_FACES", "SURFACE_CHECK_TOLERANCE", "Blade", "BodyMaterial", "LumpedMass", "MassProperties",
            "blade_from_job", "blade_from_surfaces", "load_blade", "loads_at", "loads_for_job", "mass_properties",
-           "pitch_sweep", "principal_axes", "resolve_blade_angle", "resolve_materials", "surface_check"]
+           "pitch_sweep", "principal_axes", "resolve_blade_angle", "resolve_materials", "surface_check",
+           "surface_options"]
 
 
 @dataclass(frozen=True)
@@ -76,6 +77,16 @@ class Blade:
       tolerance, the kernel's figures beside ours: :func:`bladesolid.cad.blade_section`); its
       ``body_moments`` are then the exact ones of the curved triangles, while ``surfaces`` and
       the mass elements are the straight triangulation (not exact for the solid)
+    geometry : what the loader did and found (:attr:`bladesolid.io.LoadedMesh.geometry`:
+      welding, bodies, cavities, inserts), SI; None for surfaces given directly
+    repairs : None when no repair was asked; else the changes made (one dict each, see
+      :attr:`bladesolid.io.LoadedMesh.repairs`), empty when nothing needed mending
+    mended_surface : ``(vertices (n, 3) in the file's unit, faces (m, 3), part (n,) or None)``
+      of the mended surface when the repair changed anything (for the record), else None
+
+    A body's surface is the whole boundary of its material: outer shell, cavities (wound
+    into the void) and the seats of its inserts (docs/CONVENTIONS.md §8); its closed-surface
+    integral is the body's own moments, and its elements fill exactly its material.
     """
 
     name: str
@@ -97,6 +108,9 @@ class Blade:
     field_resolution: dict | None = None
     warnings: tuple[str, ...] = field(default_factory=tuple)
     cad: dict | None = None
+    geometry: dict | None = None
+    repairs: tuple | None = None
+    mended_surface: tuple | None = None
 
     @property
     def surface_moments(self) -> Moments:
@@ -174,10 +188,12 @@ class Blade:
         return element_fields(self, rpm, blade_angle_deg, pitch_change_deg=pitch_change_deg)
 
     def compare(self, repaired, rpm: float, blade_angle_deg: float | None = None,
-                pitch_change_deg: float | None = None, *, units: str | None = None, limits=None, **options):
+                pitch_change_deg: float | None = None, *, units: str | None = None, limits=None,
+                weld_tol: float | None = None, repair: bool = False, repair_limit_pct: float = 1.0, **options):
         """:func:`bladesolid.compare.compare_blade` with this blade as the reference.
 
-        repaired : a mesh file (read in ``units``, default this blade's) or its surfaces
+        repaired : a mesh file (read in ``units``, default this blade's, with ``weld_tol``,
+          ``repair`` and ``repair_limit_pct`` as in :func:`load_blade`) or its surfaces
           ``[(vertices (n, 3) m, faces (m, 3)), ...]`` in their own frame
         limits : a limits file or :class:`bladesolid.compare.Limits` (None: nothing checked)
         options : the keywords of :func:`~bladesolid.compare.compare_blade` (``transform``, ...)
@@ -191,7 +207,9 @@ class Blade:
 
             path = os.fspath(repaired)
             unit = units if units is not None or declares_unit(path) else self.units  # STEP/IGES: the file's
-            repaired = [(b.vertices, b.faces) for b in read_mesh(path, unit).bodies]
+            loaded = read_mesh(path, unit, weld_tol=weld_tol, repair=repair,
+                               repair_limit_pct=repair_limit_pct)
+            repaired = [(b.vertices, b.faces) for b in loaded.bodies]
             options.setdefault("repaired_source", path)
             options.setdefault("repaired_name", os.path.basename(path))
         if isinstance(limits, (str, os.PathLike)):
@@ -200,15 +218,23 @@ class Blade:
                              limits=limits, **options)
 
 
-def resolve_materials(specs, n_bodies: int, source: str = "densities") -> tuple[BodyMaterial, ...]:
+def resolve_materials(specs, n_bodies: int, source: str = "densities", inserts=()) -> tuple[BodyMaterial, ...]:
     """Densities for ``n_bodies`` bodies from a list of ``("density", text)`` or
-    ``("material", name)`` specs: one spec for all bodies, or one per body in order."""
+    ``("material", name)`` specs: one spec for all bodies, or one per body in order.
+
+    inserts : ``[(insert name, host name), ...]`` of the bodies that are inserts; an insert is
+    its own material, so with inserts one density for all is refused, naming the insert."""
     from .materials import material
     from .units import parse_density
 
     specs = list(specs or [])
     if not specs:
         raise InputError(source, "no density given: give a density with its unit (\"2810 kg/m^3\") or a material name")
+    inserts = list(inserts)
+    if len(specs) == 1 and n_bodies > 1 and inserts:
+        name, host = inserts[0]
+        raise InputError(source, f"one density given for {n_bodies} bodies, but {name} is an insert nested in {host} "
+                                 f"(a body of its own material): give one density per body, in order (body 1 first)")
     if len(specs) not in (1, n_bodies):
         raise InputError(source, f"{len(specs)} densities given for {n_bodies} bodies; give one, or one per body")
     out = []
@@ -242,6 +268,9 @@ def load_blade(
     angle_line: str = "chord",
     check=None,
     cad_tolerance: float | None = None,
+    weld_tol: float | None = None,
+    repair: bool = False,
+    repair_limit_pct: float = 1.0,
 ) -> Blade:
     """Load, validate, mesh and integrate a blade.
 
@@ -274,6 +303,11 @@ def load_blade(
       moments of a CAD solid come from its curved triangles (exact for the solid to ~1e-5);
       the mass elements fill the straight triangulation, so they are not exact for the solid
       (``Blade.elements_exact`` is False) and their volume difference is reported
+    weld_tol : weld vertices of a surface closer than this, in the mesh unit, always (default:
+      at 1e-6 of the bounding-box diagonal, only when the surface is open as read)
+    repair : mend a damaged surface first (:func:`bladesolid.repair.repair_surface` per part),
+      every change in ``Blade.repairs``; refused when the volume changes by more than
+      ``repair_limit_pct`` percent (docs/CONVENTIONS.md §8)
 
     A flat bar 40 × 600 × 10 mm from r = 100 mm to 700 mm, aluminium, at 1000 rpm:
 
@@ -294,12 +328,13 @@ def load_blade(
     say = progress or (lambda stage: None)
     frame = frame or hub_frame()
     say("load")
-    loaded = read_mesh(path, units, cad_tolerance=cad_tolerance)
+    loaded = read_mesh(path, units, cad_tolerance=cad_tolerance, weld_tol=weld_tol, repair=repair,
+                       repair_limit_pct=repair_limit_pct)
     bodies = loaded.bodies
     if densities is not None and not isinstance(densities, (list, tuple)):
         densities = [densities]
     specs = [d if isinstance(d, tuple) else ("density", d) for d in (densities or [])]
-    mats = resolve_materials(specs, len(bodies))
+    mats = resolve_materials(specs, len(bodies), inserts=[(b.name, b.host) for b in bodies if b.host])
     R, t = frame.model_to_hub()
     if model_transform is not None:
         T = np.asarray(model_transform, dtype=float)
@@ -325,6 +360,7 @@ def load_blade(
         from .cad import blade_section
 
         blade = replace(blade, cad=blade_section(loaded.cad, R, t, [m.density_kg_m3 for m in mats]))
+    blade = replace(blade, geometry=loaded.geometry, repairs=loaded.repairs, mended_surface=loaded.mended)
     if all(b.tets is not None for b in bodies):
         elements = True  # a volume mesh brings its elements: no meshing, so always use them
     if not elements:
@@ -405,12 +441,14 @@ def blade_from_surfaces(surfaces, materials, frame: HubFrame, *, lumped=(), refe
       default each body's closed-surface integral
 
     Each body's moments are the exact closed-surface integral (or the given ``body_moments``)
-    times its density; the blade angle is measured at the reference station (a warning, not an
-    error, when it cannot be).
+    times its density; a body whose
+    tensor no solid can have (a surface that crosses itself or is wound inside out) is refused
+    (:func:`bladesolid.moments.check_physical_inertia`), never reported. The blade angle is
+    measured at the reference station (a warning, not an error, when it cannot be).
     A density outside the usual range of solids is a warning (:func:`bladesolid.bounds.density_warning`).
     """
     from .bounds import density_warning
-    from .moments import surface_volume_moments
+    from .moments import check_physical_inertia, surface_volume_moments
 
     surfaces = tuple((np.asarray(v, dtype=float), np.asarray(f, dtype=np.int64)) for v, f in surfaces)
     materials = tuple(materials)
@@ -422,6 +460,8 @@ def blade_from_surfaces(surfaces, materials, frame: HubFrame, *, lumped=(), refe
     if body_moments is None:
         body_moments = [surface_volume_moments(v, f) for v, f in surfaces]
     body_moments = tuple(m.scaled(mat.density_kg_m3) for m, mat in zip(body_moments, materials))
+    for i, m in enumerate(body_moments):
+        check_physical_inertia(m, source if len(body_moments) == 1 else f"{source}: body {i + 1}")
     lumped = tuple(lumped)
     lumped_moments = zero_moments()
     for p in lumped:
@@ -642,6 +682,17 @@ def pitch_sweep(blade: Blade, rpm: float, lo_deg: float, hi_deg: float, step_deg
 # --- from a job ---------------------------------------------------------------------------
 
 
+def surface_options(job) -> dict:
+    """The loader's keywords of a job (``weld_tol`` in the mesh unit, ``repair``,
+    ``repair_limit_pct``) for :func:`load_blade` and :func:`bladesolid.io.read_mesh`."""
+    from .units import length_scale
+
+    weld_m = getattr(job, "weld_m", None)
+    return {"weld_tol": None if weld_m is None else weld_m / length_scale(job.units, job.source),
+            "repair": bool(getattr(job, "repair", False)),
+            "repair_limit_pct": float(getattr(job, "repair_limit_pct", 1.0))}
+
+
 def blade_from_job(job, *, elements: bool = True, model_transform=None, progress=None) -> Blade:
     """Load the blade a validated :class:`bladesolid.job.Job` describes (``model_transform``:
     an optional 4x4 applied to the mesh first, see :func:`load_blade`)."""
@@ -667,6 +718,7 @@ def blade_from_job(job, *, elements: bool = True, model_transform=None, progress
         angle_line=job.angle_line,
         check=lambda b: check_against_blade(job, b),
         cad_tolerance=job.cad_tolerance,
+        **surface_options(job),
     )
     if job.pitch_point_m is not None:
         check_pitch_point(frame, blade.moments.cg, blade.tip_radius_m, f"{job.source}")

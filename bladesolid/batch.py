@@ -227,9 +227,19 @@ def _run(job_path, command, folder, force) -> dict:
             data = loads_report(blade, job, ops)
         else:
             data = report.mass_report(blade, api.mass_properties(blade))
+        from .review import mended_name
+
+        mended = mended_name(blade)
+        if mended and isinstance(data.get("geometry"), dict):
+            data["geometry"]["repaired_surface"] = mended
         with report.staged_folder(folder, force) as tmp:
             with open(os.path.join(tmp, "report.json"), "w", encoding="utf-8") as fh:
                 fh.write(report.dumps(data))
+            if mended:
+                from .io import stl_bytes
+
+                with open(os.path.join(tmp, mended), "wb") as fh:
+                    fh.write(stl_bytes(*blade.mended_surface))
     m = blade.moments
     row = {"name": blade.name, "status": status, "mass_kg": _finite(m.mass), "cg_radius_m": _finite(m.cg[1])}
     if ops:

@@ -112,6 +112,9 @@ KEYS: dict[str, str] = {
     "cad_tolerance": "--cad-tolerance",
     "reference": "--reference",
     "limits": "--limits",
+    "weld": "--weld",
+    "repair": "--repair",
+    "repair_limit": "--repair-limit",
     "operating_point": "",
     "lumped_mass": "",
     "counterweight": "",
@@ -180,6 +183,10 @@ class Job:
     reference: str | None = None
     limits: str | None = None
     set_reports: tuple = ()
+    weld_m: float | None = None  # weld distance (key ``weld``, given in the mesh unit), m
+    repair: bool = False
+    repair_limit_pct: float = 1.0
+
     #: (key, where) of every key given: where it came from as messages name it (the flag, or
     #: the file and key); "operating_point#i" names where the i-th operating point came from
     origins: tuple = ()
@@ -533,6 +540,8 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
             r if os.path.isabs(r) else os.path.join(base_dir, r) for r in t.get("reports", []) if isinstance(r, str)
         )
 
+    weld, repair, repair_limit = _surface_keys(merged, w, scale)
+
     return Job(
         source=source,
         mesh=path_of("mesh"),
@@ -567,6 +576,9 @@ def build_job(data: dict, source: str, base_dir: str = ".", flags: dict | None =
         set_reports=set_reports,
         origins=tuple((k, w(k)) for k in merged if KEYS.get(k) != "")
         + tuple((f"operating_point#{i}", wh) for i, wh in enumerate(op_where)),
+        weld_m=weld,
+        repair=repair,
+        repair_limit_pct=repair_limit,
     )
 
 
@@ -584,6 +596,26 @@ def _declared_units(mesh: str, source: str) -> str:
         raise InputError(mesh, f"declares the length unit {unit.label}, none of {', '.join(LENGTH_UNITS)}; the job's "
                                "points and lengths need one of them: re-export the file in one")
     return unit.name
+
+
+def _surface_keys(merged: dict, w, scale: float):
+    """``weld`` (a distance >= 0 in the mesh unit, returned in m), ``repair`` (true/false) and
+    ``repair_limit`` (percent, above 0 and at most 100) of a job (docs/CONVENTIONS.md §8)."""
+    weld = None
+    if "weld" in merged:
+        weld = _num(merged["weld"], w("weld"), "weld")
+        if weld < 0:
+            raise InputError(w("weld"), f"must be a distance >= 0 in the mesh unit, got {weld}")
+        weld *= scale
+    repair = merged.get("repair", False)
+    if not isinstance(repair, bool):
+        raise InputError(w("repair"), f"must be true or false, got {repair!r}")
+    limit = 1.0
+    if "repair_limit" in merged:
+        limit = _num(merged["repair_limit"], w("repair_limit"), "repair_limit")
+        if not 0 < limit <= 100:
+            raise InputError(w("repair_limit"), f"must be a percentage above 0 and at most 100, got {limit}")
+    return weld, repair, limit
 
 
 def load_job(path, flags: dict | None = None) -> Job:

@@ -3,7 +3,8 @@
 :func:`repair_surface` takes a triangle surface in the unit of its file (before scaling) and,
 in this order,
 
-1. welds vertices closer than a tolerance (a scan exported face by face);
+1. welds vertices closer than a tolerance (a scan exported face by face;
+   :func:`bladesolid.weld.weld`, faces that collapse are dropped and recorded);
 2. drops faces with a repeated vertex, exact duplicate faces, and pairs of the same triangle
    wound both ways (an internal double wall);
 3. re-triangulates folded planar regions: a flat cap fanned from a point about which its
@@ -13,7 +14,8 @@ in this order,
    Delaunay of the projected outline, no new vertices) when that outline is a simple polygon,
    else fanned from the loop's centroid (one new vertex);
 5. unites closed parts that overlap (one material): manifold3d's boolean union of each group
-   of overlapping outward-wound shells; inner shells wound inward (cavities) are kept.
+   of overlapping outward-wound shells; inner shells wound inward (cavities) are kept, and so
+   is a part lying wholly inside another (an insert: a body of its own, not an overlap).
 
 and checks that the result is closed, consistently wound and encloses a positive volume.
 
@@ -124,6 +126,7 @@ def repair_surface(
     weld_tol: float | None = None,
     source: str = "mesh",
     unit: str = "",
+    limit_parameter: str = "max_volume_change",
 ) -> RepairResult:
     """Mend a triangle surface of one material (see the module notes); refuse a large change.
 
@@ -133,6 +136,7 @@ def repair_surface(
     weld_tol : vertices closer than this (mesh unit) are merged; default 1e-7 of the
       bounding-box diagonal
     source : the file named in errors;  unit : the mesh unit's name, for messages only
+    limit_parameter : the caller's name for the bound, named in the refusal
     Returns a :class:`RepairResult`; a sound surface comes back unchanged with no repairs.
     Raises :class:`InputError` when the surface cannot be mended or the change is too large.
     """
@@ -168,7 +172,7 @@ def repair_surface(
             source,
             f"the repair would change the volume by {100 * change:.3g} % (more than the "
             f"{100 * max_volume_change:.3g} % allowed; largest: {worst.what} at {_fmt(worst.where)}{u}); "
-            "mend the surface in a CAD or scan tool, or allow a larger change (max_volume_change)",
+            f"mend the surface in a CAD or scan tool, or allow a larger change ({limit_parameter})",
         )
     return RepairResult(v, f, tuple(repairs), volume, change)
 
@@ -176,33 +180,24 @@ def repair_surface(
 # --- steps -----------------------------------------------------------------------------------------
 
 
-def _weld(vertices: np.ndarray, faces: np.ndarray, tol: float):
-    """Merge vertices closer than ``tol`` (each to the first of its cluster); minimal stand-in
-    for :func:`bladesolid.weld.weld`, which replaces it. Returns (vertices, faces, merged (n,) bool)."""
-    from scipy.sparse import coo_matrix
-    from scipy.sparse.csgraph import connected_components
-    from scipy.spatial import cKDTree
-
-    n = len(vertices)
-    pairs = cKDTree(vertices).query_pairs(max(tol, 0.0), output_type="ndarray").reshape(-1, 2)
-    if not len(pairs):
-        return vertices, faces, np.zeros(n, dtype=bool)
-    g = coo_matrix((np.ones(len(pairs)), (pairs[:, 0], pairs[:, 1])), shape=(n, n))
-    _, lab = connected_components(g, directed=False)
-    first = np.full(lab.max() + 1, n, dtype=np.int64)
-    np.minimum.at(first, lab, np.arange(n))
-    rep = first[lab]
-    return vertices, rep[faces], rep != np.arange(n)
-
-
 def _weld_step(v, f, tol, repairs, u):
-    v2, f2, merged = _weld(v, f, tol)
-    if merged.any():
-        repairs.append(Repair(
-            f"welded {int(merged.sum())} vertices lying within {tol:.3g}{u} of another",
-            tuple(v[merged].mean(axis=0)),
-        ))
-    return v2, f2
+    """Weld vertex copies closer than ``tol`` (:func:`bladesolid.weld.weld`); faces that collapse
+    to fewer than three vertices are dropped, each step recorded."""
+    from .weld import weld
+
+    w = weld(v, f, tol)
+    if not w.merged:
+        return v, f
+    moved = np.ones(len(v), dtype=bool)
+    moved[np.unique(w.index, return_index=True)[1]] = False  # the first copy of each group stays
+    repairs.append(Repair(
+        f"welded {w.merged} vertices lying within {w.tol:.3g}{u} of another",
+        tuple(v[moved].mean(axis=0)),
+    ))
+    if len(w.dropped):
+        repairs.append(Repair(f"removed {len(w.dropped)} faces that collapsed to a line or a point when welded",
+                              _centre(v, f[w.dropped]), faces_removed=len(w.dropped)))
+    return w.vertices, w.faces
 
 
 def _drop_bad_faces(v, f, repairs):
@@ -278,7 +273,7 @@ def _fix_winding(v, f, repairs):
         return f
     key = np.sort(f, axis=1)
     flipped = _winding_parity(g, key) != _winding_parity(f, key)
-    from .mesh import shell_labels
+    from .geometry import shell_labels
 
     lab = shell_labels(g)
     for k in np.unique(lab[flipped]):  # turn the minority of each shell, not the majority
@@ -295,7 +290,7 @@ def _fix_winding(v, f, repairs):
 def _orient_shells(v, f, repairs):
     """A closed shell wound inside out (negative volume) that lies inside no other shell is
     turned round; inner shells wound inward (cavities) stay as they are."""
-    from .mesh import shell_labels, winding_numbers
+    from .geometry import shell_labels, winding_numbers
 
     if not _is_closed(f):
         return f
@@ -449,7 +444,7 @@ def _fill_holes(v, f, repairs, u):
 
 def _unite_overlaps(v, f, diag, repairs, u, source):
     """Union of overlapping outward shells (manifold3d); inward shells (cavities) kept."""
-    from .mesh import shell_labels
+    from .geometry import shell_labels
 
     if not _is_closed(f):
         return v, f
@@ -481,7 +476,8 @@ def _unite_overlaps(v, f, diag, repairs, u, source):
             if np.any(lo1 > hi2) or np.any(lo2 > hi1):
                 continue
             common = (solids[x] ^ solids[y]).volume()
-            if common > 1e-9 * min(vols[x], vols[y]):
+            small = min(vols[x], vols[y])
+            if common > 1e-9 * small and common < (1.0 - 1e-9) * small:  # wholly inside: an insert
                 parent[find(x)] = find(y)
     groups: dict[int, list[int]] = {}
     for i in outward:

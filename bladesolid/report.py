@@ -21,7 +21,7 @@ __all__ = ["CSV_COMMENT", "LOAD_FIGURES", "SCHEMA", "atomic_write_bytes", "atomi
            "cad_sections",
            "check_new_output", "compare_report", "csv_rows", "csv_text", "dumps", "header", "jsonable", "load_figures",
            "mass_report", "mass_section", "match_report", "operating_point_row", "review_html", "span_report",
-           "staged_folder", "sweep_rows"]
+           "staged_folder", "surface_sections", "sweep_rows"]
 
 SCHEMA = "bladesolid.report/1"
 
@@ -129,6 +129,7 @@ def base_report(blade) -> dict:
             "field_resolution": blade.field_resolution,
         },
         warnings=list(blade.warnings),
+        **surface_sections(blade),
     )
     data.update(cad_sections(blade))
     return data
@@ -143,6 +144,20 @@ def cad_sections(blade) -> dict:
     if c is None:
         return {}
     return {"cad": {k: v for k, v in c.items() if k != "kernel"}, "cad_kernel": list(c["kernel"])}
+
+
+def surface_sections(blade, prefix: str = "") -> dict:
+    """``geometry`` (what the loader did: welding, bodies, cavities, inserts) and, when a
+    repair was asked, ``repairs`` (one entry per change) of a blade (docs/CONVENTIONS.md §6);
+    ``prefix`` names them for a second blade (``reference_geometry``)."""
+    out = {}
+    geometry = getattr(blade, "geometry", None)
+    if geometry is not None:
+        out[f"{prefix}geometry"] = dict(geometry)
+    repairs = getattr(blade, "repairs", None)
+    if repairs is not None:
+        out[f"{prefix}repairs"] = [dict(r) for r in repairs]
+    return out
 
 
 def blade_angle_section(blade) -> dict:
@@ -382,6 +397,12 @@ def review_html(data: dict, images: dict | None = None, files: list | None = Non
     parts.append(f'<div class="caution"><b>Caution.</b> {_e(d.get("caution") or CAUTION)}</div>')
     if d.get("warnings"):
         parts.append("<section><h2>Warnings</h2><ul>" + "".join(f'<li class="warn">{_e(w)}</li>' for w in d["warnings"]) + "</ul></section>")
+    if d.get("repairs"):
+        rows = [[_e(r["what"]), _num(r["where"]), _e(f"+{r['faces_added']} / −{r['faces_removed']}"),
+                 _e(f"+{r['volume_added']:.4g} / −{r['volume_removed']:.4g}"), _e(r.get("unit", ""))] for r in d["repairs"]]
+        mended = (d.get("geometry") or {}).get("repaired_surface")
+        parts.append("<section><h2>Repairs</h2>" + _table(rows, ["change", "where", "faces", "volume", "unit"])
+                     + (f"<p>mended surface: {_e(mended)}</p>" if mended else "") + "</section>")
 
     # inputs
     rows = [[_e(f"body {b['body']}"), _e(b["material"]), _num(b["density_kg_m3"]), _e(b.get("density_source", ""))]

@@ -100,12 +100,17 @@ def compare_job(job, transform=None, reference_units=None, progress=None):
 
     # a STEP or IGES reference carries its own unit, a mesh takes the job's
     ref_units = reference_units or (None if declares_unit(job.reference) else job.units)
+    options = api.surface_options(job)
+    if ref_units and ref_units != job.units and options["weld_tol"] is not None:  # weld is in the mesh's unit
+        from .units import length_scale
+
+        options["weld_tol"] = job.weld_m / length_scale(ref_units, "--reference-units")
     reference = api.load_blade(job.reference, ref_units, list(job.densities), lumped=lumped,
                                frame=hub_frame_of(job), reference_radius_m=job.reference_radius_m,
                                reference_fraction=job.reference_fraction, elements=False, progress=progress,
                                check=lambda b: check_against_blade(job, b),
-                               cad_tolerance=job.cad_tolerance)
-    repaired = read_mesh(job.mesh, job.units, cad_tolerance=job.cad_tolerance)
+                               cad_tolerance=job.cad_tolerance, **options)
+    repaired = read_mesh(job.mesh, job.units, cad_tolerance=job.cad_tolerance, **api.surface_options(job))
     op = job.operating_points[0]
     result = compare.compare_blade(reference, [(b.vertices, b.faces) for b in repaired.bodies], op.rpm,
                                    blade_angle_deg=op.blade_angle_deg, pitch_change_deg=op.pitch_change_deg,
@@ -167,9 +172,11 @@ def run_review(job, progress=None, *, with_views: bool = True) -> Review:
 
     if comparison is not None:
         from . import compare as compare_mod
+        from .report import surface_sections
 
         rv.comparison, rv.reference = comparison, reference
         data["comparison"] = compare_mod.comparison_section(comparison)
+        data.update(surface_sections(reference, "reference_"))
         data["input"]["reference_mesh"] = job.reference
         data["input"]["registered_to_reference"] = True
     if job.set_reports:
@@ -359,6 +366,15 @@ def write_review(rv: Review, folder, force: bool = False, progress=None, with_vi
 
         _write_pictures(rv, data, files, images, views)
 
+    for blade, key in ((rv.blade, "geometry"), (rv.reference, "reference_geometry")):
+        name = mended_name(blade, files)
+        if name:
+            from .io import stl_bytes
+
+            files[name] = stl_bytes(*blade.mended_surface)
+            if isinstance(data.get(key), dict):
+                data[key]["repaired_surface"] = name
+
     clock.start("report")
     data["timings_s"] = {**rv.timings_s, **{f"write_{k}": v for k, v in clock.timings.items()}}
     names = sorted(list(files) + ["report.json", "report.html", CAUTION_FILE])
@@ -370,6 +386,19 @@ def write_review(rv: Review, folder, force: bool = False, progress=None, with_vi
                 fh.write(blob)
     clock.stop()
     return names
+
+
+def mended_name(blade, taken=()) -> str | None:
+    """The file name of a blade's mended surface in an output folder, ``<mesh stem>_repaired.stl``
+    (``-2``, ``-3``... when taken); None when the repair changed nothing or was not asked."""
+    if blade is None or getattr(blade, "mended_surface", None) is None:
+        return None
+    stem = os.path.splitext(os.path.basename(str(blade.source)))[0] or "mesh"
+    name, k = f"{stem}_repaired.stl", 1
+    while name in taken:
+        k += 1
+        name = f"{stem}_repaired-{k}.stl"
+    return name
 
 
 def _write_pictures(rv: Review, data: dict, files: dict, images: dict, views) -> None:

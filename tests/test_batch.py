@@ -284,3 +284,30 @@ def test_unreachable_scheduler_is_one_input_error_and_no_folder(tmp_path):
     with pytest.raises(InputError, match="cannot reach the dask scheduler"):
         batch.run_batch([jobs], tmp_path / "out", scheduler="tcp://127.0.0.1:9", connect_timeout_s=2)
     assert not (tmp_path / "out").exists()
+
+
+def test_a_job_with_repair_is_mended_and_a_damaged_one_reported(tmp_path):
+    # the demo blade's root face taken away: refused as open, mended by `repair = true` to the
+    # closed blade's mass (trimesh's mass properties of the shipped, closed blade)
+    import trimesh
+
+    from .geohelp import open_root, write
+
+    write(tmp_path / "scan.stl", *open_root())
+    jobs = tmp_path / "jobs"
+    jobs.mkdir()
+    for stem, extra in (("as-is", ""), ("mended", "repair = true\n")):
+        (jobs / f"{stem}.toml").write_text(f'mesh = "{tmp_path / "scan.stl"}"\nunits = "mm"\ndensity = "2810 kg/m^3"\n'
+                                           f'{extra}[[operating_point]]\nrpm = {RPM}\n')
+    result = batch.run_batch([jobs], tmp_path / "out", command="loads", workers=0)
+    rows = {Path(r["job"]).stem: r for r in result.rows}
+    assert rows["as-is"]["status"] == "bad input" and "open surface" in rows["as-is"]["reason"]
+    assert "repair=True" in rows["as-is"]["reason"]
+    assert rows["mended"]["status"] == "ok"
+    closed = trimesh.load(DEMO, force="mesh")
+    assert rows["mended"]["mass_kg"] == pytest.approx(2810.0 * closed.volume * 1e-9, rel=1e-12)
+    data = json.loads((tmp_path / "out" / "mended" / "report.json").read_text())
+    assert data["geometry"]["repaired_surface"] == "scan_repaired.stl"
+    assert data["repairs"][0]["what"].startswith("filled a planar hole")
+    assert trimesh.load(tmp_path / "out" / "mended" / "scan_repaired.stl").is_watertight
+    assert result.exit_status == 2

@@ -201,11 +201,14 @@ def test_two_overlapping_bodies(tmp_path):
     assert "500 mm^3" in text and "50 %" in text  # half of a 10 mm cube (closed form)
 
 
-def test_nested_bodies(tmp_path):
+def test_nested_bodies_are_an_insert_not_an_overlap(tmp_path):
+    # a shell wound outward inside another is an insert (docs/CONVENTIONS.md §8; more cases in
+    # test_io_bodies.py): no overlap refusal, the host's material excludes the insert's volume
     v1, f1 = box_arrays((40.0, 40.0, 40.0))
     v2, f2 = box_arrays((10.0, 10.0, 10.0))
     path = stl(tmp_path, "nested.stl", np.vstack([v1, v2]), np.vstack([f1, f2 + 8]))
-    refused(path, "body 2 lies inside body 1")
+    host, insert = read_mesh(path, "mm").bodies
+    assert insert.host == "body 1" and surface_volume(host) == pytest.approx((40.0**3 - 10.0**3) * 1e-9, rel=1e-12)
 
 
 def test_too_many_bodies(tmp_path):

@@ -222,3 +222,19 @@ def test_jobs_without_units_for_files_that_carry_none(tmp_path):
     _step_file(tmp_path / "micro.step", "SI_UNIT(.MICRO.,.METRE.)")
     with pytest.raises(InputError, match=r"micro.step: declares the length unit SI_UNIT\(.MICRO.,.METRE.\)"):
         build_job({"mesh": "micro.step", "material": "al-2025-t6"}, "job.toml", str(tmp_path))
+def test_weld_repair_and_repair_limit_keys():
+    # docs/CONVENTIONS.md §8: weld in the mesh unit (kept in m), repair true/false, the bound in percent
+    job = build_job(minimal(weld=0.002, repair=True, repair_limit=2.5), "job.toml")
+    assert job.weld_m == pytest.approx(2e-6) and job.repair is True and job.repair_limit_pct == 2.5
+    plain = build_job(minimal(), "job.toml")
+    assert plain.weld_m is None and plain.repair is False and plain.repair_limit_pct == 1.0
+    # a flag overrides the key, and errors name the flag
+    assert build_job(minimal(repair=False), "job.toml", flags={"repair": True}).repair is True
+    for key, value, fragment in (("weld", -1.0, "distance >= 0"), ("repair", "yes", "true or false"),
+                                 ("repair_limit", 0.0, "percentage"), ("repair_limit", 101, "percentage")):
+        with pytest.raises(InputError, match=fragment) as info:
+            build_job(minimal(**{key: value}), "job.toml")
+        assert info.value.source == f"job.toml: key '{key}'"
+    with pytest.raises(InputError) as info:
+        build_job(minimal(), "command line", flags={"weld": -0.1})
+    assert info.value.source == "--weld"

@@ -26,18 +26,61 @@ __all__ = ["cmd_batch", "cmd_check", "cmd_compare", "cmd_demo", "cmd_loads", "cm
            "cmd_materials", "cmd_span", "cmd_view"]
 
 
-def _blade(args, *, elements: bool, speed: bool = True):
-    """(job, blade, stderr console): the validated job of the arguments (with an operating
-    point when ``speed``) and its blade, loaded with the stages shown and its warnings printed."""
+def _blade(args, *, elements: bool, speed: bool = True, beside=None):
+    """(job, blade, stderr console, mended path): the validated job of the arguments (with an
+    operating point when ``speed``) and its blade, loaded with the stages shown and its warnings
+    printed. With a repair asked, the mended surface goes beside the output file ``beside``
+    (checked here, before any work; None: no output file, nothing written)."""
     from .. import api
 
     job = job_of(args)
     if speed:
         require_operating_points(job)
+    mended = _mended_path(job, job.mesh, beside, args.force)
     err = printing.console(stderr=True)
     blade = api.blade_from_job(job, elements=elements, progress=printing.progress(err))
     printing.warn(err, blade)
-    return job, blade, err
+    return job, blade, err, mended
+
+
+def _mended_path(job, mesh, beside, force, suffix: str = "_repaired") -> str | None:
+    """Where the mended surface of ``mesh`` goes when the job asks for a repair:
+    ``<mesh stem><suffix>.stl`` in the folder of the output file ``beside`` (docs/CONVENTIONS.md
+    §8); refused before any work when it exists (without ``--force``). None: no repair asked,
+    or no output file to put it beside."""
+    if not job.repair or not beside or not mesh:
+        return None
+    from ..report import check_new_output
+
+    stem = os.path.splitext(os.path.basename(str(mesh)))[0]
+    path = os.path.join(os.path.dirname(str(beside)), f"{stem}{suffix}.stl")
+    if os.path.realpath(path) == os.path.realpath(str(beside)):
+        raise InputError(str(beside), f"is where the mended surface of {mesh} goes; give the report another name")
+    check_new_output(path, force)
+    return path
+
+
+def _write_mended(err, source, repairs, mended, path, force, data=None, key: str = "geometry") -> None:
+    """Say on ``err`` what the repair of ``source`` changed, write the mended surface
+    (``(vertices, faces, part)`` in the file's unit, or None when nothing changed) to ``path``
+    and record the path in ``data[key]["repaired_surface"]``. Nothing when no repair was asked
+    (``repairs`` None)."""
+    if repairs is None:
+        return
+    from ..io import stl_bytes
+    from ..report import atomic_write_bytes
+
+    written, note = None, ""
+    if mended is not None:
+        if path:
+            written = atomic_write_bytes(path, stl_bytes(*mended), force)
+        else:
+            stem = os.path.splitext(os.path.basename(str(source)))[0]
+            note = (f"the mended surface was not written: give --json FILE to keep it beside the report "
+                    f"({stem}_repaired.stl)")
+    printing.print_repairs(err, source, repairs, written, note)
+    if data is not None and isinstance(data.get(key), dict):
+        data[key]["repaired_surface"] = written
 
 
 def cmd_mass(args) -> int:
@@ -45,14 +88,16 @@ def cmd_mass(args) -> int:
     from .. import report
 
     check_outputs(args.force, ("--json", args.json))
-    _, blade, err = _blade(args, elements=args.check_elements, speed=False)
+    _, blade, err, mended = _blade(args, elements=args.check_elements, speed=False, beside=args.json)
     props = blade.mass_properties()
     if not props.surface_check_ok:
         err.print(f"[yellow]warning:[/yellow] the two independent routes to the moments disagree by "
                   f"{props.surface_check_rel_error:.1e} ({props.surface_check_method}); the surface may be "
                   "self-intersecting or overlapping — check the mesh")
+    data = report.mass_report(blade, props)
+    _write_mended(err, blade.source, blade.repairs, blade.mended_surface, mended, args.force, data)
     if args.json:
-        report.atomic_write_text(args.json, report.dumps(report.mass_report(blade, props)), args.force)
+        report.atomic_write_text(args.json, report.dumps(data), args.force)
     printing.print_cad(printing.console(), blade, args.us)
     printing.print_mass(printing.console(), blade, props, args.us)
     return 0
@@ -67,7 +112,7 @@ def cmd_loads(args) -> int:
                   ("--rpm-csv", args.rpm_csv), ("--rpm-plot", args.rpm_plot))
     if (args.rpm_csv or args.rpm_plot) and job_of(args).rpm_sweep is None:  # before any work
         raise InputError("--rpm-sweep", "give the speed range (--rpm-sweep FROM:TO:STEP) for --rpm-csv / --rpm-plot")
-    job, blade, _ = _blade(args, elements=False)
+    job, blade, err, mended = _blade(args, elements=False, beside=args.json)
     ops = api.loads_for_job(blade, job)
     data = loads_report(blade, job, ops)
     if (args.rpm_csv or args.rpm_plot) and "rpm_sweep" not in data:
@@ -90,6 +135,7 @@ def cmd_loads(args) -> int:
                                  np.array([r["radial_pull_N"] for r in rows]), args.rpm_plot,
                                  title=f"{blade.name} — at {ops[0].blade_angle_deg:.4g} deg",
                                  operating_rpm=ops[0].rpm, force=args.force)
+    _write_mended(err, blade.source, blade.repairs, blade.mended_surface, mended, args.force, data)
     if args.json:
         report.atomic_write_text(args.json, report.dumps(data), args.force)
     printing.print_cad(printing.console(), blade, args.us)
@@ -116,6 +162,10 @@ def cmd_check(args) -> int:
         if prog is not None:
             prog.stop()
     printing.warn(err, rv.blade)
+    for b, key in ((rv.blade, "geometry"), (rv.reference, "reference_geometry")):
+        if b is not None and b.repairs is not None:
+            written = (rv.report.get(key) or {}).get("repaired_surface")
+            printing.print_repairs(err, b.source, b.repairs, written and os.path.join(args.out, written))
     con = printing.console()
     printing.print_cad(con, rv.blade, args.us)
     printing.print_loads(con, rv.blade, rv.report, args.us)
@@ -157,7 +207,13 @@ def cmd_view(args) -> int:
     problem = display_problem()  # before any work: a display that does not answer opens no window
     if problem:
         raise InputError("view", f"{problem}; the PNG renders of `bladesolid check` show the same fields")
-    job, blade, _ = _blade(args, elements=True)
+    job, blade, err, _ = _blade(args, elements=True)
+    if blade.mended_surface is not None:
+        printing.print_repairs(err, blade.source, blade.repairs, None,
+                               "the mended surface was not written: view writes no files (mass, loads or span with "
+                               "--json FILE keep it beside the report)")
+    else:
+        printing.print_repairs(err, blade.source, blade.repairs)
     op = job.operating_points[0]
     f = blade.fields(op.rpm, op.blade_angle_deg, op.pitch_change_deg)
     printing.console().print(f"[dim]{CAUTION}[/dim]")  # the window shows it too
@@ -179,14 +235,15 @@ def cmd_span(args) -> int:
     from ..span import SPAN_NOTE, plot_span, spanwise_rows
 
     check_outputs(args.force, ("--json", args.json), ("--csv", args.csv), ("--plot", args.plot))
-    job, blade, _ = _blade(args, elements=True)
+    job, blade, err, mended = _blade(args, elements=True, beside=args.json or args.csv)
     op = job.operating_points[0]
     table = blade.span(op.rpm, op.blade_angle_deg, op.pitch_change_deg, stations=job.stations,
                        allowable_Pa=job.allowable_Pa)
     rows = spanwise_rows(table)
+    data = report.span_report(blade, op, table, rows, SPAN_NOTE)
+    _write_mended(err, blade.source, blade.repairs, blade.mended_surface, mended, args.force, data)
     if args.json:
-        report.atomic_write_text(args.json, report.dumps(report.span_report(blade, op, table, rows, SPAN_NOTE)),
-                                 args.force)
+        report.atomic_write_text(args.json, report.dumps(data), args.force)
     if args.csv:
         report.atomic_write_text(args.csv, report.csv_text(spanwise_rows(table, flat=True)), args.force)
     if args.plot:
@@ -207,6 +264,9 @@ def cmd_compare(args) -> int:
     if job.reference is None:
         raise InputError("--reference", "compare needs the reference (nominal) blade: --reference MESH")
     require_operating_points(job)
+    mended = _mended_path(job, job.mesh, args.json, args.force)
+    mended_ref = _mended_path(job, job.reference, args.json, args.force,
+                              "_reference_repaired" if _same_stem(job.mesh, job.reference) else "_repaired")
     err = printing.console(stderr=True)
     result, reference, repaired = compare_job(job, transform=args.transform, reference_units=args.reference_units,
                                               progress=printing.progress(err))
@@ -221,14 +281,23 @@ def cmd_compare(args) -> int:
         d = result.deviation
         render_deviation(d.vertices, d.faces, d.values, args.deviation_png, frame=reference.frame,
                          title=f"Deviation — {result.repaired_name}", force=args.force)
+    section = compare.comparison_section(result)
+    section["deviation_png"] = args.deviation_png
+    data = report.compare_report(job, section, [*reference.warnings, *repaired.warnings, *result.warnings],
+                                 transform=args.transform, reference_units=args.reference_units)
+    data.update(report.surface_sections(repaired))
+    data.update(report.surface_sections(reference, "reference_"))
+    _write_mended(err, job.mesh, repaired.repairs, repaired.mended, mended, args.force, data)
+    _write_mended(err, job.reference, reference.repairs, reference.mended_surface, mended_ref, args.force, data,
+                  "reference_geometry")
     if args.json:
-        section = compare.comparison_section(result)
-        section["deviation_png"] = args.deviation_png
-        data = report.compare_report(job, section, [*reference.warnings, *repaired.warnings, *result.warnings],
-                                     transform=args.transform, reference_units=args.reference_units)
         report.atomic_write_text(args.json, report.dumps(data), args.force)
     printing.print_compare(printing.console(), result, args.us)
     return 1 if result.verdict == "outside limits" else 0
+
+
+def _same_stem(a, b) -> bool:
+    return bool(a and b) and os.path.splitext(os.path.basename(str(a)))[0] == os.path.splitext(os.path.basename(str(b)))[0]
 
 
 def cmd_match(args) -> int:

@@ -29,8 +29,11 @@ PARAMETER_FLAGS = {
     "target_elements": "--elements",
     "max_element_volume_m3": "--element-size",
     "cad_tolerance": "--cad-tolerance",
+    "weld_tol": "--weld",
+    "repair=True": "--repair",
+    "repair_limit_pct": "--repair-limit",
 }
-_NAMED_IN_TEXT = re.compile(r"\b(" + "|".join(re.escape(k) for k in PARAMETER_FLAGS if "_" in k) + r")\b")
+_NAMED_IN_TEXT = re.compile(r"\b(" + "|".join(re.escape(k) for k in PARAMETER_FLAGS if "_" in k or "=" in k) + r")\b")
 
 
 def command_line_message(exc: InputError) -> str:
@@ -40,8 +43,8 @@ def command_line_message(exc: InputError) -> str:
 
     >>> command_line_message(InputError("blade_angle_deg", "give either blade_angle_deg or pitch_change_deg"))
     '--blade-angle: give either --blade-angle or --pitch-change'
-    >>> command_line_message(InputError("blade.stl", "open surface"))
-    'blade.stl: open surface'
+    >>> command_line_message(InputError("blade.stl", "open surface; mend it with repair=True"))
+    'blade.stl: open surface; mend it with --repair'
     """
     source = PARAMETER_FLAGS.get(exc.source, exc.source)
     problem = _NAMED_IN_TEXT.sub(lambda m: PARAMETER_FLAGS[m.group(1)], exc.problem)
@@ -54,7 +57,8 @@ def job_keys(args) -> dict:
     for key in ("units", "name", "hub_centre", "thrust_axis", "pitch_axis", "pitch_point", "precone",
                 "rotation", "blades", "reference_radius", "reference_fraction", "rpm", "blade_angle",
                 "pitch_change", "sweep", "stations", "allowable", "elements", "element_size", "field_faces",
-                "reference", "limits", "rpm_sweep", "proof_factor", "rated_rpm", "angle_line", "cad_tolerance"):
+                "reference", "limits", "rpm_sweep", "proof_factor", "rated_rpm", "angle_line", "cad_tolerance", "weld", "repair",
+                "repair_limit"):
         v = getattr(args, key, None)
         if v is not None:
             out[key] = v

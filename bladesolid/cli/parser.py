@@ -59,6 +59,14 @@ def _add_blade_flags(p, job_allowed: bool = True, positional: bool = True, json_
     p.add_argument("--angle-line", choices=["chord", "face"],
                    help="reference line of the blade angle: the nose-to-tail chord (default) or the flat face")
     p.add_argument("--name", help="blade name shown in the reports")
+    p.add_argument("--weld", type=float, metavar="TOL",
+                   help="weld vertices closer than TOL (mesh unit), always (default: 1e-6 of the model size, only "
+                        "when the surface is open as read)")
+    p.add_argument("--repair", action="store_const", const=True, default=None,
+                   help="mend a damaged surface (holes, folded caps, duplicate faces, overlapping parts of one "
+                        "material); every change is reported, the mended surface written beside the outputs")
+    p.add_argument("--repair-limit", type=float, metavar="PCT",
+                   help="largest volume change a repair may make, percent of the volume (default 1)")
     if json_flag:
         p.add_argument("--json", metavar="FILE", help="write the JSON report here")
     p.add_argument("--force", action="store_true", help="overwrite existing output files")

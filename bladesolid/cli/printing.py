@@ -17,7 +17,7 @@ import numpy as np
 from .. import CAUTION
 
 __all__ = ["STAGE_LABELS", "console", "conv", "esc", "fmt", "live_console", "print_batch", "print_cad", "print_compare",
-           "print_loads", "print_mass", "print_match", "print_materials", "print_span", "progress", "release",
+           "print_loads", "print_mass", "print_match", "print_materials", "print_repairs", "print_span", "progress", "release",
            "stage_progress", "stderr_session", "verbose", "warn"]
 
 
@@ -181,6 +181,30 @@ def warn(con, blade):
     """The blade's warnings, one line each."""
     for w in blade.warnings:
         con.print(f"[yellow]warning:[/yellow] {esc(w)}", soft_wrap=True)  # one line each, whatever the width
+
+
+def print_repairs(con, source, repairs, written=None, note=""):
+    """The changes a repair made to the surface of ``source`` (one line each, in the mesh unit),
+    then where the mended surface went (``written``) or ``note`` (why it was not written).
+    Nothing is printed when no repair was asked (``repairs`` None)."""
+    if repairs is None:
+        return
+    if not repairs:
+        con.print(f"[green]repair:[/green] {esc(source)}: nothing needed mending")
+        return
+    for r in repairs:
+        u = r.get("unit", "")
+        where = ", ".join(f"{x:.4g}" for x in r["where"])
+        vol = ""
+        if r["volume_added"] or r["volume_removed"]:
+            vol = f", volume +{r['volume_added']:.4g} / −{r['volume_removed']:.4g} {u}^3"
+        part = f" (part {r['part']})" if r.get("part") else ""
+        con.print(f"[yellow]repaired:[/yellow] {esc(source)}{part}: {esc(r['what'])} at ({where}) {u}; faces "
+                  f"+{r['faces_added']} / −{r['faces_removed']}{vol}")
+    if written:
+        con.print(f"[yellow]repaired:[/yellow] the mended surface was written to {esc(written)}")
+    elif note:
+        con.print(f"[yellow]repaired:[/yellow] {esc(note)}")
 
 
 def fmt(x, digits=6):

@@ -190,6 +190,9 @@ def compare_blade(reference, repaired_surfaces, rpm: float, *, blade_angle_deg: 
     deviation = Deviation(signed_deviation(rv, query), rv, rf)
     if volumes:
         removed, added = boolean_volumes(ref_surfaces, reg_surfaces, reference.source, repaired_source)
+        if min(removed, added) < -1e-9 * max(abs(reference.volume_m3), 1e-300):  # no volume is negative
+            raise InputError(repaired_source, f"the boolean volumes came out negative (removed {removed:.4g} m^3, added "
+                                              f"{added:.4g} m^3); a surface is probably self-intersecting")
     else:
         removed = added = float("nan")
 

@@ -22,17 +22,29 @@ parse      any exception of trimesh/meshio becomes "cannot be read as <format>: 
 arrays     no triangles; face indices out of range; NaN / infinite coordinates;
            coordinates beyond 1000 km
 merge      exactly coincident vertices are merged (bit-exact, ``-0.0 == 0.0``)
+weld       when the exact merge leaves boundary or non-manifold edges (a facet-by-facet CAD
+           export), vertices within 1e-6 of the bounding-box diagonal are merged, never across
+           parts; ``weld_tol`` given: always, at that distance (the count is a warning)
 faces      degenerate faces (repeated vertex, or area below 1e-12 of the squared bounding
            box diagonal) are refused, never dropped
 edges      non-manifold edges (more than two faces), boundary edges (open surface),
            inconsistent winding (both faces traverse an edge the same way)
-shells     each edge-connected closed shell is one body; zero volume is refused; a shell
-           with negative volume (inside out) is flipped, with a warning
-bodies     at most :data:`MAX_BODIES`; bodies whose bounding boxes overlap are intersected
-           with manifold3d and refused when the common volume exceeds 1e-6 of the smaller
-           (touching is fine; a shell inside another — e.g. an inner cavity — is refused)
+shells     each edge-connected closed shell; zero volume is refused; an outermost shell
+           with negative volume (inside out) is flipped with the shells nested in it, with a
+           warning
+nesting    a shell nested in another is a cavity (wound into the void: subtracted) or an
+           insert (wound outward: a body of its own material, seated in its host)
+self-int.  every body's boundary is checked for faces that cross, touch or overlap
+           (:mod:`bladesolid.selfintersect`); refused with the count, a point and a box
+bodies     at most :data:`MAX_BODIES`; bodies (other than an insert and its host) whose
+           bounding boxes overlap are intersected with manifold3d and refused when the common
+           volume exceeds 1e-6 of the smaller (touching is fine)
 size       a solid longer than 20 m or shorter than 20 mm gives a warning naming a unit
            that would make it plausible
+
+With ``repair=True`` a surface is first mended part by part (:mod:`bladesolid.repair`), every
+change recorded (``LoadedMesh.repairs``), and then goes through the same checks. Refusals of
+a damaged surface name ``repair=True`` (or say that the repair could not mend it).
 
 Volume meshes: linear tetrahedra (``tetra``); quadratic ``tetra10`` are read through their
 four corner nodes with a warning that states how far the mid-edge nodes lie from the straight
@@ -42,9 +54,6 @@ face-connected components of the tetrahedra. Negative tetrahedra are reordered (
 zero-volume ones, faces shared by more than two tetrahedra and interior faces with both
 tetrahedra on the same side (folded or overlapping elements) are refused.
 
-Not checked here: self-intersection of one shell (no cheap exact test exists; the
-tetrahedraliser in :mod:`bladesolid.mesh` refuses such a surface when it fills the solid).
-
 The package, one module per seam:
 
 ============  ==================================================================
@@ -52,7 +61,8 @@ reader        the front door :func:`read_mesh`; :class:`Body`, :class:`LoadedMes
 guards        file checks, parser boundary (memory cap, quiet), end-of-file guards, sniffing
 surfaces      STL / OBJ / PLY / OFF to raw arrays; :func:`write_surface`
 volumes       ``.msh`` / ``.vtu`` / ``.inp`` tetrahedra to bodies
-checks        arrays, faces, edges, shells, tetrahedra, overlaps between bodies, size
+bodies        a raw surface to bodies: merge, weld, shells, cavities and inserts, self-intersection
+checks        arrays, faces, edges, tetrahedra, overlaps between bodies, size
 inputs        the small input files (job, limits, transform, reports): :func:`read_toml`, :func:`read_json`
 ============  ==================================================================
 
@@ -62,13 +72,14 @@ with a guard that stops a parser reading past the end of the file in a loop, and
 ``*INCLUDE`` in a keyword deck (which would open other files) is refused.
 """
 
+from .bodies import surface_bodies
 from .checks import MAX_BODIES, manifold_solid, merge_coincident
 from .guards import DEFAULT_MAX_BYTES
 from .reader import Body, LoadedMesh, read_mesh
-from .surfaces import SURFACE_FORMATS, write_surface
+from .surfaces import SURFACE_FORMATS, stl_bytes, write_surface
 from .inputs import check_input_file, read_json, read_toml
 from .volumes import VOLUME_FORMATS
 
 __all__ = ["DEFAULT_MAX_BYTES", "MAX_BODIES", "SURFACE_FORMATS", "VOLUME_FORMATS", "Body", "LoadedMesh",
            "check_input_file", "manifold_solid", "merge_coincident", "read_json", "read_mesh", "read_toml",
-           "write_surface"]
+           "stl_bytes", "surface_bodies", "write_surface"]

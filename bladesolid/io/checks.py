@@ -10,13 +10,13 @@ from __future__ import annotations
 import numpy as np
 
 from ..errors import InputError
-from ..geometry import orient_positive, origin_tet_volumes, tet_signed_volumes
+from ..geometry import orient_positive, tet_signed_volumes
 from ..units import LENGTH_UNITS
 
 __all__ = ["DEGENERATE_AREA_REL", "MAX_BODIES", "MAX_COORDINATE_M", "OVERLAP_REL", "PLAUSIBLE_LENGTH_M",
-           "ZERO_TET_REL", "ZERO_VOLUME_REL", "check_arrays", "check_body_count", "check_edges", "check_overlaps", "components",
-           "manifold_solid", "merge_coincident", "orient_tets", "plausibility_warning", "reindex", "surface_bodies",
-           "tet_faces", "where"]
+           "ZERO_TET_REL", "ZERO_VOLUME_REL", "check_arrays", "check_body_count", "check_degenerate", "check_edges",
+           "check_overlaps", "components", "edge_table", "manifold_solid", "mend_hint", "merge_coincident", "merge_exact",
+           "orient_tets", "plausibility_warning", "reindex", "tet_faces", "where"]
 
 #: Most closed shells accepted in one file (a blade, a sheath, a few inserts).
 MAX_BODIES = 100
@@ -32,45 +32,6 @@ ZERO_VOLUME_REL = 1e-9
 ZERO_TET_REL = 1e-16
 #: Two bodies overlap when their common volume exceeds this fraction of the smaller one.
 OVERLAP_REL = 1e-6
-
-
-def surface_bodies(source, vertices, faces, unit, warnings, part=None):
-    """Validate a raw triangle surface (declared unit) and split it into closed shells.
-
-    ``part`` (n,) int, optional: the solid / object of the file each vertex belongs to
-    (ASCII STL ``solid`` blocks, OBJ objects); vertices are merged within a part only, so
-    parts that touch along coincident faces stay separate manifold shells.
-    Returns a list of ``(vertices, faces, None, volume, first_face, "")`` per shell.
-    """
-    vertices, faces = check_arrays(source, vertices, faces, unit)
-    vertices, faces = merge_coincident(vertices, faces, part)
-    _check_degenerate(source, vertices, faces, unit)
-    pairs = check_edges(source, vertices, faces, unit)
-    labels = components(len(faces), pairs[0], pairs[1])
-    count = check_body_count(source, labels, "separate closed shells")
-    centre = 0.5 * (vertices.min(axis=0) + vertices.max(axis=0))
-    vol = np.bincount(labels, weights=origin_tet_volumes(vertices, faces, centre), minlength=count)
-    bodies = []
-    for k in range(count):
-        fk = faces[labels == k]
-        used, fk = reindex(fk, len(vertices))
-        vk = vertices[used]
-        diag = float(np.linalg.norm(vk.max(axis=0) - vk.min(axis=0)))
-        if not np.isfinite(vol[k]) or abs(vol[k]) <= ZERO_VOLUME_REL * diag**3:
-            raise InputError(
-                source,
-                f"a closed shell of {len(fk)} faces has zero volume (a flat or collapsed "
-                f"surface) {where(vk, unit)}; a solid must enclose volume",
-            )
-        first = int(np.flatnonzero(labels == k)[0])
-        if vol[k] < 0:
-            fk = fk[:, [0, 2, 1]]
-            warnings.append(
-                f"a closed shell of {len(fk)} faces {where(vk, unit)} was wound inside out "
-                "(negative volume); its faces were flipped to point outward"
-            )
-        bodies.append((vk, fk, None, abs(float(vol[k])), first, ""))
-    return bodies
 
 
 def check_body_count(source, labels: np.ndarray, what: str) -> int:
@@ -128,9 +89,15 @@ def merge_coincident(vertices: np.ndarray, faces: np.ndarray, part: np.ndarray |
     >>> merge_coincident(v, np.array([[0, 1, 2], [4, 3, 2]]))[1].tolist()
     [[0, 1, 2], [0, 1, 2]]
     """
+    return merge_exact(vertices, faces, part)[:2]
+
+
+def merge_exact(vertices: np.ndarray, faces: np.ndarray, part: np.ndarray | None = None):
+    """:func:`merge_coincident`, also returning ``kept`` (p,) int64: the input index of each
+    vertex kept (the first copy), so that per-vertex data follow (``part[kept]``)."""
     v = np.ascontiguousarray(vertices, dtype=np.float64) + 0.0  # + 0.0 turns -0.0 into 0.0
     if not len(v):
-        return v.reshape(0, 3), faces
+        return v.reshape(0, 3), faces, np.zeros(0, dtype=np.int64)
     bits = v.view(np.uint64)
     cols = [np.ascontiguousarray(bits[:, k]) for k in range(3)]
     if part is not None:
@@ -166,10 +133,11 @@ def merge_coincident(vertices: np.ndarray, faces: np.ndarray, part: np.ndarray |
     rank[np.argsort(first)] = np.arange(len(first))
     rep = np.empty(len(v), dtype=np.int64)
     rep[order] = rank[np.cumsum(new) - 1]
-    return v[np.sort(first)], rep[faces]
+    kept = np.sort(first)
+    return v[kept], rep[faces], kept
 
 
-def _check_degenerate(source, vertices, faces, unit):
+def check_degenerate(source, vertices, faces, unit):
     """Refuse faces with a repeated vertex or (relatively) zero area."""
     repeated = (
         (faces[:, 0] == faces[:, 1]) | (faces[:, 1] == faces[:, 2]) | (faces[:, 0] == faces[:, 2])
@@ -189,7 +157,7 @@ def _check_degenerate(source, vertices, faces, unit):
         )
 
 
-def _edge_table(faces: np.ndarray, n_vertices: int):
+def edge_table(faces: np.ndarray, n_vertices: int):
     """Group the 3m directed edges by their undirected edge.
 
     Returns (order, starts, counts, forward): ``order`` sorts the edge slots (slot ``3i+j``
@@ -225,12 +193,23 @@ def _runs(keys: np.ndarray):
     return order, starts, np.diff(np.append(starts, len(order)))
 
 
-def check_edges(source, vertices, faces, unit, what="surface"):
+def mend_hint(repaired: bool) -> str:
+    """The end of a refusal of a damaged surface: how to mend it (naming the parameter
+    ``repair=True``), or that the repair asked for could not."""
+    if repaired:
+        return "repair=True could not mend it; mend it in a CAD or scan tool"
+    return "mend it with repair=True (or in a CAD or scan tool)"
+
+
+def check_edges(source, vertices, faces, unit, what="surface", *, table=None, hint=""):
     """Refuse non-manifold, open and inconsistently wound surfaces.
 
+    table : the :func:`edge_table` of ``faces`` when already made;  hint : appended to each
+    refusal after a semicolon (e.g. :func:`mend_hint`).
     Returns the face pairs ``(u, v)`` across every edge, for the components.
     """
-    order, starts, counts, forward = _edge_table(faces, len(vertices))
+    order, starts, counts, forward = edge_table(faces, len(vertices)) if table is None else table
+    tail = f"; {hint}" if hint else ""
 
     def edge_points(mask):
         slots = order[starts[mask]]
@@ -242,14 +221,14 @@ def check_edges(source, vertices, faces, unit, what="surface"):
         raise InputError(
             source,
             f"non-manifold {what}: {int(many.sum())} edges are shared by more than two faces "
-            f"{where(edge_points(many), unit)}; each edge of a closed solid joins exactly two",
+            f"{where(edge_points(many), unit)}; each edge of a closed solid joins exactly two{tail}",
         )
     single = counts == 1
     if single.any():
         raise InputError(
             source,
             f"open {what}: {int(single.sum())} boundary edges (holes) "
-            f"{where(edge_points(single), unit)}; the solid must be closed (watertight)",
+            f"{where(edge_points(single), unit)}; the solid must be closed (watertight){tail}",
         )
     s0, s1 = order[starts], order[starts + 1]
     same = forward[s0] == forward[s1]
@@ -257,7 +236,7 @@ def check_edges(source, vertices, faces, unit, what="surface"):
         raise InputError(
             source,
             f"inconsistent winding: {int(same.sum())} edges are traversed the same way by both "
-            f"of their faces {where(edge_points(same), unit)}; some faces are flipped",
+            f"of their faces {where(edge_points(same), unit)}; some faces are flipped{tail}",
         )
     return s0 // 3, s1 // 3
 
@@ -399,17 +378,23 @@ def manifold_solid(vertices: np.ndarray, faces: np.ndarray):
     return manifold3d.Manifold(mesh)
 
 
-def check_overlaps(source, bodies, unit, scale, warnings):
+def check_overlaps(source, bodies, unit, scale, warnings, *, hint=""):
     """Refuse bodies whose volumes intersect (beyond OVERLAP_REL of the smaller one).
 
-    Only pairs whose bounding boxes overlap are intersected (manifold3d boolean). A pair
-    manifold3d cannot take (e.g. a shell pinched at a vertex) is reported in ``warnings``.
+    Only pairs whose bounding boxes overlap are intersected (manifold3d boolean); an insert and
+    its host are not (the host's boundary holds the insert's seat, and the self-intersection
+    check of that boundary has seen them apart). A pair manifold3d cannot take (e.g. a shell
+    pinched at a vertex) is reported in ``warnings``. ``hint`` ends an overlap's refusal.
     """
     lo = np.array([b.vertices.min(axis=0) for b in bodies])
     hi = np.array([b.vertices.max(axis=0) for b in bodies])
     span = float(np.max(hi.max(axis=0) - lo.min(axis=0)))
     gap = np.minimum(hi[:, None, :], hi[None, :, :]) - np.maximum(lo[:, None, :], lo[None, :, :])
     boxes = (gap > 1e-9 * span).all(axis=2)
+    for i, b in enumerate(bodies):  # an insert sits in its host's seat: checked with the host
+        for j, h in enumerate(bodies):
+            if getattr(b, "host", "") and b.host == h.name:
+                boxes[i, j] = boxes[j, i] = False
     i_idx, j_idx = np.nonzero(np.triu(boxes, k=1))
     if not len(i_idx):
         return
@@ -436,18 +421,19 @@ def check_overlaps(source, bodies, unit, scale, warnings):
             inner = bodies[j].name if b.volume() <= a.volume() else bodies[i].name
             outer = bodies[i].name if inner == bodies[j].name else bodies[j].name
             frac = common / small
+            tail = f"; {hint}" if hint else ""
             if frac > 0.999:
                 raise InputError(
                     source,
-                    f"{inner} lies inside {outer} (common volume {common / scale**3:.4g} "
-                    f"{unit}^3); nested shells such as cavities or embedded parts are not "
-                    "supported: give each solid as its own closed shell sharing no volume",
+                    f"{inner} lies inside {outer} and touches it (common volume {common / scale**3:.4g} "
+                    f"{unit}^3); a cavity or insert must lie wholly inside the shell around it, touching it "
+                    f"nowhere{tail}",
                 )
             raise InputError(
                 source,
                 f"{bodies[i].name} and {bodies[j].name} overlap: they share "
                 f"{common / scale**3:.4g} {unit}^3 ({100 * frac:.3g} % of the smaller); "
-                "bodies in one file may touch but not interpenetrate",
+                f"bodies in one file may touch but not interpenetrate{tail}",
             )
 
 

@@ -16,7 +16,7 @@ import numpy as np
 from ..errors import InputError
 from .guards import parser_boundary, reason, sniff
 
-__all__ = ["SURFACE_FORMATS", "read_surface", "write_surface"]
+__all__ = ["SURFACE_FORMATS", "read_surface", "stl_bytes", "write_surface"]
 
 #: Surface formats read through trimesh (binary STL read directly), by extension.
 SURFACE_FORMATS = {".stl": "STL", ".obj": "OBJ", ".ply": "PLY", ".off": "OFF"}
@@ -172,14 +172,46 @@ def write_surface(path, vertices, faces) -> None:
 
     vertices : (n, 3) float, any unit; faces : (m, 3) int into ``vertices``.
     """
-    v = np.asarray(vertices, dtype=np.float64)[np.asarray(faces, dtype=np.int64)]
-    rec = np.zeros(len(v), dtype=_STL_DTYPE)
-    rec["v"] = v
+    with open(path, "wb") as fh:
+        fh.write(stl_bytes(vertices, faces))
+
+
+def stl_bytes(vertices, faces, part=None) -> bytes:
+    """A triangle surface as the bytes of an STL file: binary STL, or — when ``part`` ((n,) int,
+    the part of each vertex) holds several parts — ASCII STL with one ``solid part_<k>`` block
+    per part, so that reading it back keeps the parts (materials) apart. Coordinates are
+    written as given (the file's own unit), in full precision.
+
+    >>> import numpy as np
+    >>> v = np.array([[0, 0, 0], [1, 0, 0], [0, 1, 0]], float)
+    >>> len(stl_bytes(v, [[0, 1, 2]]))      # 84-byte header + one 50-byte record
+    134
+    """
+    v = np.asarray(vertices, dtype=np.float64)
+    f = np.asarray(faces, dtype=np.int64)
+    labels = None if part is None else np.asarray(part)[f[:, 0]]
+    if labels is not None and len(np.unique(labels)) > 1:
+        out = []
+        for k in np.unique(labels):
+            out.append(f"solid part_{int(k) + 1}")
+            tri = v[f[labels == k]]
+            with np.errstate(all="ignore"):
+                n = np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0])
+                norm = np.linalg.norm(n, axis=1, keepdims=True)
+                n = np.divide(n, norm, out=np.zeros_like(n), where=norm > 0)
+            for nn, t in zip(n, tri):
+                out.append("  facet normal " + " ".join(f"{x:.17g}" for x in nn))
+                out.append("    outer loop")
+                out.extend("      vertex " + " ".join(f"{x:.17g}" for x in p) for p in t)
+                out.append("    endloop")
+                out.append("  endfacet")
+            out.append(f"endsolid part_{int(k) + 1}")
+        return ("\n".join(out) + "\n").encode("ascii")
+    tri = v[f]
+    rec = np.zeros(len(tri), dtype=_STL_DTYPE)
+    rec["v"] = tri
     with np.errstate(all="ignore"):
-        n = np.cross(v[:, 1] - v[:, 0], v[:, 2] - v[:, 0])
+        n = np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0])
         norm = np.linalg.norm(n, axis=1, keepdims=True)
         rec["normal"] = np.divide(n, norm, out=np.zeros_like(n), where=norm > 0)
-    with open(path, "wb") as fh:
-        fh.write(b"bladesolid".ljust(80, b" "))
-        fh.write(np.uint32(len(v)).tobytes())
-        fh.write(rec.tobytes())
+    return b"bladesolid".ljust(80, b" ") + np.uint32(len(tri)).tobytes() + rec.tobytes()

@@ -15,7 +15,8 @@ import io as _io
 import numpy as np
 
 from ..errors import InputError
-from .checks import check_arrays, check_body_count, check_edges, components, orient_tets, reindex, surface_bodies, tet_faces
+from .bodies import surface_bodies
+from .checks import check_arrays, check_body_count, check_edges, components, orient_tets, reindex, tet_faces
 from .guards import GuardedBinary, GuardedText, guard_keyword_deck, parser_boundary, reason
 
 __all__ = ["VOLUME_FORMATS", "read_meshio", "volume_bodies"]
