@@ -92,15 +92,17 @@ def test_a_mesh_without_units_is_refused(tmp_path):
         read_mesh(path, None)
 
 
-def test_two_bodies_in_one_file_by_descending_volume(tmp_path):
+def test_two_bodies_in_one_file_in_file_order(tmp_path):
+    # docs/CONVENTIONS.md §8: bodies are numbered in file order, the order densities are given in
     small = box((10.0, 10.0, 10.0), (0.0, 0.0, 0.0))
     big = sphere(radius=50.0, centre=(200.0, 0.0, 0.0))
-    path = tmp_path / "two.stl"
-    write_surface_as(trimesh.util.concatenate([small, big]), path, "stl-binary")
-    loaded = read_mesh(path, "mm")
-    assert [b.name for b in loaded.bodies] == ["body 1", "body 2"]
-    assert surface_volume(loaded.bodies[0]) == pytest.approx(big.volume * 1e-9, rel=1e-6)
-    assert surface_volume(loaded.bodies[1]) == pytest.approx(1000 * 1e-9, rel=1e-6)
+    for first, second, name in ((small, big, "small-first"), (big, small, "big-first")):
+        path = tmp_path / f"{name}.stl"
+        write_surface_as(trimesh.util.concatenate([first, second]), path, "stl-binary")
+        loaded = read_mesh(path, "mm")
+        assert [b.name for b in loaded.bodies] == ["body 1", "body 2"]
+        assert surface_volume(loaded.bodies[0]) == pytest.approx(first.volume * 1e-9, rel=1e-6)
+        assert surface_volume(loaded.bodies[1]) == pytest.approx(second.volume * 1e-9, rel=1e-6)
     assert len(loaded.bodies[1].vertices) == 8  # each body holds only its own vertices
 
 

@@ -106,10 +106,10 @@ def read_mesh(path, units: str | None, *, max_bytes: int | None = None, weld_tol
     Returns
     -------
     LoadedMesh
-        Bodies named ``"body 1"``, ``"body 2"``, ... by descending volume (enclosed by their
-        outer shells; ties: first face in the file for surfaces, first node for volume meshes),
-        so a host comes before its inserts; vertices in metres in the model frame, outer
-        shells wound outward, cavities into the void.
+        Bodies named ``"body 1"``, ``"body 2"``, ... in file order (the order of each body's
+        first face for surfaces — of its first part for a file that names parts —, of its first
+        node for volume meshes), the order in which densities are given; vertices in metres in
+        the model frame, outer shells wound outward, cavities into the void.
 
     Raises
     ------
@@ -170,7 +170,7 @@ def read_mesh(path, units: str | None, *, max_bytes: int | None = None, weld_tol
 
     # bodies are (raw vertices, faces, tets, volume_raw, first, group[, info]) in the declared unit
     bodies = [b if len(b) == 7 else (*b, {}) for b in bodies]
-    bodies.sort(key=lambda b: (-b[3], b[4]))
+    bodies.sort(key=lambda b: b[4])  # file order: densities are given once per body in this order
     names = {b[6].get("id"): f"body {i + 1}" for i, b in enumerate(bodies) if b[6]}
     out = tuple(
         Body(f"body {i + 1}", v * scale, f, t, g, int(info.get("cavities", 0)),
